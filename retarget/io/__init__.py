@@ -1,0 +1,29 @@
+"""Reading and writing clips and rigs; the format follows the file extension."""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+from ..errors import RetargetError
+from ..motion import Motion
+from .atomic import atomic_write
+from .bvh import format_bvh, parse_bvh, read_bvh, write_bvh
+
+__all__ = ["read_motion", "write_motion", "read_bvh", "write_bvh", "parse_bvh", "format_bvh", "atomic_write"]
+
+
+def read_motion(path: str | os.PathLike, fps: float | None = None) -> Motion:
+    """Read a clip or rig; BVH now, glTF where that reader is installed."""
+    ext = Path(path).suffix.lower()
+    if ext == ".bvh":
+        return read_bvh(path, fps=fps)
+    raise RetargetError(f"unsupported file type {ext or '(none)'!r}: expected .bvh", path=str(path))
+
+
+def write_motion(path: str | os.PathLike, motion: Motion) -> Path:
+    """Write a clip; the format follows the extension."""
+    ext = Path(path).suffix.lower()
+    if ext == ".bvh":
+        return write_bvh(path, motion)
+    raise RetargetError(f"unsupported output type {ext or '(none)'!r}: expected .bvh", path=str(path))

@@ -1,0 +1,31 @@
+"""Atomic file output: write next to the destination, then rename, so there is never a half file."""
+
+from __future__ import annotations
+
+import os
+import tempfile
+from pathlib import Path
+
+from ..errors import RetargetError
+
+__all__ = ["atomic_write"]
+
+
+def atomic_write(path: str | os.PathLike, data: bytes) -> Path:
+    """Write ``data`` to ``path`` through a temporary file in the same folder and an atomic rename."""
+    path = Path(path)
+    folder = path.parent if str(path.parent) else Path(".")
+    if not folder.is_dir():
+        raise RetargetError("output folder does not exist", path=str(folder))
+    fd, tmp = tempfile.mkstemp(dir=folder, prefix=f".{path.name}.", suffix=".part")
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except FileNotFoundError:
+            pass
+        raise
+    return path

@@ -1,0 +1,414 @@
+"""BVH reading and writing.
+
+The HIERARCHY block is parsed as text, line by line, so every error can name its line. The MOTION block
+is parsed by one numpy call. Channel semantics follow the format as commonly documented: rotation channels
+compose intrinsically in the order listed (R = R_first @ R_second @ R_third), position channels replace
+the joint's OFFSET (they are not added to it), angles are in degrees.
+"""
+
+from __future__ import annotations
+
+import io
+import os
+import re
+from pathlib import Path
+
+import numpy as np
+
+from .. import quat
+from ..errors import BVHError
+from ..motion import Motion
+from ..skeleton import POSITION_CHANNELS, ROTATION_CHANNELS, Skeleton
+from .atomic import atomic_write
+
+__all__ = ["read_bvh", "write_bvh", "format_bvh"]
+
+_VALID_CHANNELS = set(POSITION_CHANNELS) | set(ROTATION_CHANNELS)
+_NUMBER = re.compile(r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$")
+
+
+def _number(tok: str, path: str, line: int, what: str) -> float:
+    try:
+        value = float(tok)
+    except ValueError:
+        raise BVHError(f"{what}: expected a number, found {tok!r}", path=path, line=line) from None
+    if not np.isfinite(value):
+        raise BVHError(f"{what}: value {tok!r} is not finite", path=path, line=line)
+    return value
+
+
+class _Hierarchy:
+    def __init__(self) -> None:
+        self.names: list[str] = []
+        self.parents: list[int] = []
+        self.offsets: list[list[float]] = []
+        self.channels: list[tuple[str, ...]] = []
+        self.tips: list[list[float] | None] = []
+
+
+def _parse_hierarchy(lines: list[str], path: str) -> tuple[_Hierarchy, int]:
+    """Parse from 'HIERARCHY' to 'MOTION'. Returns the hierarchy and the index of the MOTION line."""
+    h = _Hierarchy()
+    i = 0
+    n = len(lines)
+    while i < n and not lines[i].strip():
+        i += 1
+    if i >= n:
+        raise BVHError("empty file: expected 'HIERARCHY'", path=path)
+    if lines[i].split()[0].upper() != "HIERARCHY":
+        raise BVHError(f"not a BVH file: expected 'HIERARCHY', found {lines[i].strip()[:40]!r}",
+                       path=path, line=i + 1)
+    i += 1
+    stack: list[int] = []       # open joints; -2 marks an End Site block
+    pending: int | None = None  # joint (or -2) declared, waiting for '{'
+    pending_line = 0
+    roots = 0
+    while i < n:
+        raw = lines[i]
+        toks = raw.split()
+        lineno = i + 1
+        i += 1
+        if not toks:
+            continue
+        key = toks[0]
+        ukey = key.upper()
+        # A '{' may follow a keyword on the same line ("JOINT Hips {").
+        if ukey in ("ROOT", "JOINT"):
+            if pending is not None:
+                raise BVHError("expected '{' after the previous joint", path=path, line=lineno)
+            if ukey == "ROOT":
+                if stack:
+                    raise BVHError("ROOT inside another joint: unbalanced braces", path=path, line=lineno)
+                roots += 1
+                if roots > 1:
+                    raise BVHError("a second ROOT: only one skeleton per file is supported", path=path,
+                                   line=lineno)
+            elif not stack or stack[-1] < 0:
+                raise BVHError("JOINT outside a joint block: unbalanced braces", path=path, line=lineno)
+            rest = [t for t in toks[1:] if t != "{"]
+            if not rest:
+                raise BVHError(f"{key} without a name", path=path, line=lineno)
+            name = " ".join(rest)
+            if name in h.names:
+                raise BVHError(f"duplicate joint name {name!r}", path=path, line=lineno)
+            h.names.append(name)
+            h.parents.append(stack[-1] if stack else -1)
+            h.offsets.append([0.0, 0.0, 0.0])
+            h.channels.append(())
+            h.tips.append(None)
+            pending, pending_line = len(h.names) - 1, lineno
+            if toks[-1] == "{":
+                stack.append(pending)
+                pending = None
+        elif ukey == "END":
+            if not stack or stack[-1] < 0:
+                raise BVHError("End Site outside a joint block: unbalanced braces", path=path, line=lineno)
+            if pending is not None:
+                raise BVHError("expected '{' after the previous joint", path=path, line=lineno)
+            pending, pending_line = -2, lineno
+            if toks[-1] == "{":
+                stack.append(-2)
+                pending = None
+        elif key == "{":
+            if pending is None:
+                raise BVHError("'{' without a ROOT, JOINT or End Site before it", path=path, line=lineno)
+            stack.append(pending)
+            pending = None
+        elif key == "}":
+            if pending is not None:
+                raise BVHError("'}' where '{' was expected", path=path, line=lineno)
+            if not stack:
+                raise BVHError("unbalanced braces: '}' with no open block", path=path, line=lineno)
+            stack.pop()
+        elif ukey == "OFFSET":
+            if not stack:
+                raise BVHError("OFFSET outside a joint block", path=path, line=lineno)
+            if len(toks) != 4:
+                raise BVHError(f"OFFSET needs 3 numbers, found {len(toks) - 1}", path=path, line=lineno)
+            vals = [_number(t, path, lineno, "OFFSET") for t in toks[1:]]
+            if stack[-1] == -2:
+                owner = _open_joint(stack)
+                if h.tips[owner] is None:
+                    h.tips[owner] = vals
+            else:
+                h.offsets[stack[-1]] = vals
+        elif ukey == "CHANNELS":
+            if not stack or stack[-1] < 0:
+                raise BVHError("CHANNELS outside a joint block", path=path, line=lineno)
+            if len(toks) < 2:
+                raise BVHError("CHANNELS needs a count", path=path, line=lineno)
+            try:
+                count = int(toks[1])
+            except ValueError:
+                raise BVHError(f"CHANNELS count must be an integer, found {toks[1]!r}", path=path,
+                               line=lineno) from None
+            names = toks[2:]
+            if len(names) != count:
+                raise BVHError(f"CHANNELS declares {count} channels but lists {len(names)}", path=path,
+                               line=lineno)
+            for c in names:
+                if c not in _VALID_CHANNELS:
+                    raise BVHError(f"unknown channel name {c!r}: expected one of X/Y/Z followed by "
+                                   "'position' or 'rotation'", path=path, line=lineno)
+            if len(set(names)) != len(names):
+                raise BVHError("a channel is listed twice", path=path, line=lineno)
+            h.channels[stack[-1]] = tuple(names)
+        elif ukey == "MOTION":
+            if stack or pending is not None:
+                raise BVHError(f"unbalanced braces: {len(stack)} block(s) still open at MOTION", path=path,
+                               line=lineno)
+            if not h.names:
+                raise BVHError("no ROOT before MOTION", path=path, line=lineno)
+            return h, i - 1
+        else:
+            raise BVHError(f"unexpected {key!r} in HIERARCHY: expected ROOT, JOINT, End Site, OFFSET, "
+                           "CHANNELS, braces or MOTION", path=path, line=lineno)
+    if stack or pending is not None:
+        raise BVHError(f"unbalanced braces: file ends with {len(stack) + (pending is not None)} block(s) open",
+                       path=path, line=pending_line or n)
+    raise BVHError("no MOTION section: the file ends after the hierarchy", path=path, line=n)
+
+
+def _open_joint(stack: list[int]) -> int:
+    for s in reversed(stack):
+        if s >= 0:
+            return s
+    raise AssertionError("End Site with no joint")
+
+
+def _parse_header_value(line: str, label: str, path: str, lineno: int) -> str:
+    head, sep, value = line.partition(":")
+    if not sep or head.strip().lower().replace(" ", "") != label.lower().replace(" ", ""):
+        raise BVHError(f"expected '{label}: ...', found {line.strip()[:40]!r}", path=path, line=lineno)
+    return value.strip()
+
+
+def _diagnose_rows(text: str, first_line: int, ncols: int, path: str) -> None:
+    """Slow path, only after the fast parse failed: find the first bad frame line and say what is wrong."""
+    frame = 0
+    for k, raw in enumerate(text.splitlines()):
+        toks = raw.split()
+        if not toks:
+            continue
+        lineno = first_line + k
+        if len(toks) != ncols:
+            raise BVHError(f"frame {frame} has {len(toks)} values, expected {ncols} (one per channel)",
+                           path=path, line=lineno)
+        for c, t in enumerate(toks):
+            try:
+                float(t)
+            except ValueError:
+                raise BVHError(f"frame {frame}, channel {c}: expected a number, found {t!r}", path=path,
+                               line=lineno) from None
+        frame += 1
+
+
+def read_bvh(path: str | os.PathLike, fps: float | None = None) -> Motion:
+    """Read a BVH file into a Motion.
+
+    path: the file. fps: overrides the file's Frame Time (some exporters write a wrong one).
+    Raises BVHError naming the file and line for anything malformed.
+    """
+    path = str(path)
+    try:
+        with open(path, "rb") as fh:
+            data = fh.read()
+    except FileNotFoundError:
+        raise BVHError("file not found", path=path) from None
+    except IsADirectoryError:
+        raise BVHError("is a folder, expected a BVH file", path=path) from None
+    except OSError as exc:
+        raise BVHError(f"cannot read: {exc.strerror}", path=path) from None
+    if b"\x00" in data[:4096]:
+        raise BVHError("not a BVH file: binary content", path=path)
+    text = data.decode("utf-8", errors="replace")
+    return parse_bvh(text, path=path, fps=fps)
+
+
+def parse_bvh(text: str, path: str = "<string>", fps: float | None = None) -> Motion:
+    """Parse BVH text (see read_bvh)."""
+    # Split off the motion data without splitting every frame line in Python.
+    m = re.search(r"^[ \t]*MOTION[ \t]*\r?$", text, flags=re.MULTILINE | re.IGNORECASE)
+    head_text = text if m is None else text[: m.end()]
+    lines = head_text.splitlines()
+    h, motion_idx = _parse_hierarchy(lines, path)
+    rest = text[m.end():] if m is not None else ""
+    # The 'Frames:' and 'Frame Time:' lines follow MOTION; find them without splitting the frame lines.
+    header: list[tuple[str, int]] = []
+    pos = rest.find("\n") + 1 if "\n" in rest else len(rest)
+    lineno = motion_idx + 2
+    while len(header) < 2:
+        if pos >= len(rest):
+            raise BVHError("motion block truncated: expected 'Frames:' and 'Frame Time:' lines", path=path,
+                           line=lineno)
+        nl = rest.find("\n", pos)
+        nl = len(rest) if nl < 0 else nl
+        line = rest[pos:nl]
+        if line.strip():
+            header.append((line, lineno))
+        pos = nl + 1
+        lineno += 1
+    body_start_line = lineno
+    frames_str = _parse_header_value(header[0][0], "Frames", path, header[0][1])
+    try:
+        declared = int(frames_str)
+    except ValueError:
+        raise BVHError(f"Frames must be a whole number, found {frames_str!r}", path=path,
+                       line=header[0][1]) from None
+    if declared < 0:
+        raise BVHError(f"Frames must not be negative, found {declared}", path=path, line=header[0][1])
+    ft_str = _parse_header_value(header[1][0], "Frame Time", path, header[1][1])
+    frame_time = _number(ft_str, path, header[1][1], "Frame Time")
+    if fps is None:
+        if frame_time <= 0:
+            raise BVHError(f"Frame Time must be positive, found {ft_str!r} (pass fps to override)", path=path,
+                           line=header[1][1])
+        fps = 1.0 / frame_time
+    body = rest[pos:] if pos <= len(rest) else ""
+
+    counts = [len(c) for c in h.channels]
+    ncols = int(sum(counts))
+    if ncols == 0:
+        values = np.zeros((declared, 0))
+        rows = declared
+    elif not body.strip():
+        values = np.zeros((0, ncols))
+        rows = 0
+    else:
+        try:
+            values = np.loadtxt(io.StringIO(body), dtype=np.float64, ndmin=2, comments=None)
+        except ValueError:
+            _diagnose_rows(body, body_start_line, ncols, path)
+            raise BVHError("motion block could not be parsed", path=path, line=body_start_line) from None
+        if values.shape[1] != ncols:
+            _diagnose_rows(body, body_start_line, ncols, path)
+            raise BVHError(f"frames have {values.shape[1]} values, expected {ncols}", path=path,
+                           line=body_start_line)
+        rows = values.shape[0]
+    if rows != declared:
+        if rows < declared:
+            raise BVHError(f"motion block truncated: 'Frames: {declared}' declared, {rows} frame lines found",
+                           path=path, line=header[0][1])
+        raise BVHError(f"'Frames: {declared}' declared, but {rows} frame lines found", path=path,
+                       line=header[0][1])
+    bad = ~np.isfinite(values)
+    if bad.any():
+        frame, col = np.argwhere(bad)[0]
+        raise BVHError(f"frame {frame}, channel {col}: value is not finite ({values[frame, col]})", path=path,
+                       line=body_start_line + int(frame))
+    return _to_motion(h, values, float(fps), path)
+
+
+def _to_motion(h: _Hierarchy, values: np.ndarray, fps: float, path: str) -> Motion:
+    n = len(h.names)
+    tips = np.array([t if t is not None else [np.nan] * 3 for t in h.tips], dtype=np.float64)
+    skeleton = Skeleton(tuple(h.names), np.array(h.parents), np.array(h.offsets), None, tips,
+                        tuple(h.channels), source=path)
+    f = values.shape[0]
+    rotations = np.empty((f, n, 4))
+    offsets = skeleton.offsets
+    translations = None
+    animated_positions = [j for j in range(1, n) if skeleton.has_position_channels(j)]
+    if animated_positions:
+        translations = np.broadcast_to(offsets, (f, n, 3)).copy()
+    root_positions = np.broadcast_to(offsets[0], (f, 3)).copy()
+    col = 0
+    for j, chans in enumerate(h.channels):
+        block = values[:, col: col + len(chans)]
+        col += len(chans)
+        rot_cols = [k for k, c in enumerate(chans) if c in ROTATION_CHANNELS]
+        if rot_cols:
+            order = "".join(chans[k][0] for k in rot_cols)
+            rotations[:, j] = quat.from_euler(block[:, rot_cols], order, degrees=True)
+        else:
+            rotations[:, j] = (0.0, 0.0, 0.0, 1.0)
+        target = root_positions if j == 0 else (translations[:, j] if translations is not None else None)
+        for k, c in enumerate(chans):
+            if c in POSITION_CHANNELS and target is not None:
+                target[:, "XYZ".index(c[0])] = block[:, k]
+    if translations is not None:
+        translations[:, 0] = root_positions
+    return Motion(skeleton, rotations, root_positions, fps, translations, source=path)
+
+
+# ----- writing -------------------------------------------------------------------------------------
+
+def _fmt(x: float) -> str:
+    s = f"{x:.6f}".rstrip("0").rstrip(".")
+    return "0" if s in ("-0", "") else s
+
+
+def _hierarchy_text(sk: Skeleton) -> list[str]:
+    out = ["HIERARCHY"]
+    kids = sk.children
+
+    def emit(j: int, depth: int) -> None:
+        ind = "\t" * depth
+        kw = "ROOT" if sk.parents[j] < 0 else "JOINT"
+        out.append(f"{ind}{kw} {sk.names[j]}")
+        out.append(f"{ind}{{")
+        out.append(f"{ind}\tOFFSET {' '.join(_fmt(v) for v in sk.offsets[j])}")
+        chans = sk.channels[j]
+        out.append(f"{ind}\tCHANNELS {len(chans)}" + ("" if not chans else " " + " ".join(chans)))
+        for c in kids[j]:
+            emit(c, depth + 1)
+        if not np.isnan(sk.tips[j]).any():
+            out.append(f"{ind}\tEnd Site")
+            out.append(f"{ind}\t{{")
+            out.append(f"{ind}\t\tOFFSET {' '.join(_fmt(v) for v in sk.tips[j])}")
+            out.append(f"{ind}\t}}")
+        out.append(f"{ind}}}")
+
+    # Iterative depth is bounded by the skeleton depth; recursion is fine for real rigs.
+    emit(0, 0)
+    return out
+
+
+def _channel_values(motion: Motion) -> np.ndarray:
+    """(F, C) channel values in file order: positions in file units, rotations in continuous degrees."""
+    sk = motion.skeleton
+    f = motion.num_frames
+    trans = motion.local_translations()
+    cols: list[np.ndarray] = []
+    for j, chans in enumerate(sk.channels):
+        if not chans:
+            continue
+        block = np.empty((f, len(chans)))
+        rot_cols = [k for k, c in enumerate(chans) if c in ROTATION_CHANNELS]
+        if rot_cols:
+            order = "".join(chans[k][0] for k in rot_cols)
+            if len(order) == 3:
+                block[:, rot_cols] = quat.to_euler_continuous(motion.rotations[:, j], order, degrees=True)
+            else:
+                raise BVHError(f"joint {sk.names[j]!r}: writing needs three rotation channels, has {order!r}")
+        for k, c in enumerate(chans):
+            if c in POSITION_CHANNELS:
+                block[:, k] = trans[:, j, "XYZ".index(c[0])]
+        cols.append(block)
+    if not cols:
+        return np.zeros((f, 0))
+    values = np.concatenate(cols, axis=1)
+    values = np.round(values, 6) + 0.0  # + 0.0 turns -0.0 into 0.0
+    return values
+
+
+def format_bvh(motion: Motion) -> str:
+    """The BVH text of a clip (hierarchy kept as given, 6 decimals, continuous Euler angles)."""
+    sk = motion.skeleton
+    values = _channel_values(motion)
+    lines = _hierarchy_text(sk)
+    lines.append("MOTION")
+    lines.append(f"Frames: {motion.num_frames}")
+    lines.append(f"Frame Time: {1.0 / motion.fps:.8f}")
+    head = "\n".join(lines) + "\n"
+    if values.size == 0:
+        return head + "\n" * motion.num_frames
+    row = " ".join(["%.6f"] * values.shape[1]) + "\n"
+    # One formatting call for the whole block is much faster than savetxt's per-row loop.
+    return head + (row * values.shape[0]) % tuple(values.ravel())
+
+
+def write_bvh(path: str | os.PathLike, motion: Motion) -> Path:
+    """Write a clip to BVH atomically (temporary file in the destination folder, then rename)."""
+    text = format_bvh(motion)
+    return atomic_write(path, text.encode("utf-8"))

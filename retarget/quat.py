@@ -1,0 +1,330 @@
+"""Vectorised quaternion helpers, scalar-last (x, y, z, w), float64.
+
+Everything here broadcasts over leading axes, so a whole clip (F, J, 4) goes through one call. The
+rotation convention is the active one used by scipy.spatial.transform.Rotation: ``rotate(q, v)`` turns
+the vector ``v``, and ``multiply(a, b)`` applies ``b`` first, then ``a``.
+
+Euler angles are *intrinsic*: the order string "ZXY" means rotate about Z, then about the new X, then
+about the newest Y, i.e. R = Rz(a0) @ Rx(a1) @ Ry(a2). This is how BVH channel lists compose, and
+what scipy calls the uppercase sequence "ZXY".
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+__all__ = [
+    "identity",
+    "normalize",
+    "conjugate",
+    "multiply",
+    "rotate",
+    "from_axis_angle",
+    "to_axis_angle",
+    "angle_between",
+    "from_euler",
+    "to_euler",
+    "to_euler_continuous",
+    "slerp",
+    "swing_twist",
+    "make_continuous",
+    "between_vectors",
+    "from_matrix",
+    "to_matrix",
+]
+
+_AXES = {"X": 0, "Y": 1, "Z": 2}
+_EULER_ORDERS = ("XYZ", "XZY", "YXZ", "YZX", "ZXY", "ZYX")
+
+
+def identity(shape: tuple[int, ...] = ()) -> np.ndarray:
+    """Identity quaternions of the given leading shape: (*shape, 4)."""
+    q = np.zeros(tuple(shape) + (4,))
+    q[..., 3] = 1.0
+    return q
+
+
+def normalize(q: np.ndarray) -> np.ndarray:
+    """Unit quaternions: (..., 4) -> (..., 4)."""
+    q = np.asarray(q, dtype=np.float64)
+    return q / np.linalg.norm(q, axis=-1, keepdims=True)
+
+
+def conjugate(q: np.ndarray) -> np.ndarray:
+    """Inverse of unit quaternions: (..., 4) -> (..., 4)."""
+    out = np.array(q, dtype=np.float64, copy=True)
+    out[..., :3] *= -1.0
+    return out
+
+
+def multiply(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Hamilton product a * b (apply b, then a): (..., 4) x (..., 4) -> (..., 4), broadcasting."""
+    a = np.asarray(a, dtype=np.float64)
+    b = np.asarray(b, dtype=np.float64)
+    ax, ay, az, aw = a[..., 0], a[..., 1], a[..., 2], a[..., 3]
+    bx, by, bz, bw = b[..., 0], b[..., 1], b[..., 2], b[..., 3]
+    out = np.empty(np.broadcast_shapes(a.shape, b.shape))
+    out[..., 0] = aw * bx + ax * bw + ay * bz - az * by
+    out[..., 1] = aw * by - ax * bz + ay * bw + az * bx
+    out[..., 2] = aw * bz + ax * by - ay * bx + az * bw
+    out[..., 3] = aw * bw - ax * bx - ay * by - az * bz
+    return out
+
+
+def rotate(q: np.ndarray, v: np.ndarray) -> np.ndarray:
+    """Rotate vectors by unit quaternions: (..., 4), (..., 3) -> (..., 3), broadcasting."""
+    q = np.asarray(q, dtype=np.float64)
+    v = np.asarray(v, dtype=np.float64)
+    u = q[..., :3]
+    w = q[..., 3:4]
+    t = 2.0 * np.cross(u, v)
+    return v + w * t + np.cross(u, t)
+
+
+def from_axis_angle(axis: np.ndarray, angle: np.ndarray) -> np.ndarray:
+    """Quaternions from unit axes (..., 3) and angles in radians (...) -> (..., 4)."""
+    axis = np.asarray(axis, dtype=np.float64)
+    half = 0.5 * np.asarray(angle, dtype=np.float64)
+    s = np.sin(half)[..., None]
+    out = np.empty(np.broadcast_shapes(axis.shape[:-1], np.shape(half)) + (4,))
+    out[..., :3] = axis * s
+    out[..., 3] = np.cos(half)
+    return out
+
+
+def to_axis_angle(q: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Unit quaternions (..., 4) -> (axes (..., 3), angles (...) in [0, pi])."""
+    q = np.where(np.asarray(q)[..., 3:4] < 0, -np.asarray(q), np.asarray(q))
+    s = np.linalg.norm(q[..., :3], axis=-1)
+    angle = 2.0 * np.arctan2(s, q[..., 3])
+    with np.errstate(invalid="ignore", divide="ignore"):
+        axis = np.where(s[..., None] > 1e-12, q[..., :3] / s[..., None], np.array([1.0, 0.0, 0.0]))
+    return axis, angle
+
+
+def angle_between(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Angle in radians of the relative rotation between unit quaternions: (..., 4) -> (...)."""
+    d = np.abs(np.sum(np.asarray(a) * np.asarray(b), axis=-1))
+    return 2.0 * np.arccos(np.clip(d, 0.0, 1.0))
+
+
+def _check_order(order: str) -> str:
+    order = order.upper()
+    if not 1 <= len(order) <= 3 or any(c not in _AXES for c in order):
+        raise ValueError(f"Euler order must be one to three of X, Y, Z, got {order!r}")
+    return order
+
+
+def _axis_quaternions(angles: np.ndarray, axis: int) -> np.ndarray:
+    q = np.zeros(angles.shape + (4,))
+    q[..., axis] = np.sin(0.5 * angles)
+    q[..., 3] = np.cos(0.5 * angles)
+    return q
+
+
+def from_euler(angles: np.ndarray, order: str, degrees: bool = False) -> np.ndarray:
+    """Quaternions from intrinsic Euler angles.
+
+    angles: (..., k) with k = len(order), one angle per axis in the order given.
+    order: one to three of "X", "Y", "Z" (repeats allowed), intrinsic, as in BVH channel lists.
+    Returns (..., 4).
+    """
+    order = _check_order(order)
+    angles = np.asarray(angles, dtype=np.float64)
+    if degrees:
+        angles = np.deg2rad(angles)
+    q = _axis_quaternions(angles[..., 0], _AXES[order[0]])
+    for i in range(1, len(order)):
+        q = multiply(q, _axis_quaternions(angles[..., i], _AXES[order[i]]))
+    return q
+
+
+def to_matrix(q: np.ndarray) -> np.ndarray:
+    """Rotation matrices from unit quaternions: (..., 4) -> (..., 3, 3)."""
+    q = np.asarray(q, dtype=np.float64)
+    x, y, z, w = q[..., 0], q[..., 1], q[..., 2], q[..., 3]
+    m = np.empty(q.shape[:-1] + (3, 3))
+    m[..., 0, 0] = 1 - 2 * (y * y + z * z)
+    m[..., 0, 1] = 2 * (x * y - z * w)
+    m[..., 0, 2] = 2 * (x * z + y * w)
+    m[..., 1, 0] = 2 * (x * y + z * w)
+    m[..., 1, 1] = 1 - 2 * (x * x + z * z)
+    m[..., 1, 2] = 2 * (y * z - x * w)
+    m[..., 2, 0] = 2 * (x * z - y * w)
+    m[..., 2, 1] = 2 * (y * z + x * w)
+    m[..., 2, 2] = 1 - 2 * (x * x + y * y)
+    return m
+
+
+def from_matrix(m: np.ndarray) -> np.ndarray:
+    """Unit quaternions from rotation matrices: (..., 3, 3) -> (..., 4), w >= 0."""
+    from scipy.spatial.transform import Rotation
+
+    m = np.asarray(m, dtype=np.float64)
+    flat = Rotation.from_matrix(m.reshape(-1, 3, 3)).as_quat()
+    q = flat.reshape(m.shape[:-2] + (4,))
+    return np.where(q[..., 3:4] < 0, -q, q)
+
+
+def _tait_bryan_angles(q: np.ndarray, order: str) -> np.ndarray:
+    """Intrinsic Tait-Bryan angles (..., 3) in radians with the middle angle in [-pi/2, pi/2]."""
+    i, j, k = (_AXES[c] for c in order)
+    m = to_matrix(q)
+    # Sign of the permutation (i, j, k): +1 for cyclic orders (XYZ, YZX, ZXY).
+    sign = 1.0 if (j - i) % 3 == 1 else -1.0
+    # For R = R_i(a) R_j(b) R_k(c): R[i, k] = sign * sin(b).
+    mid = np.arcsin(np.clip(sign * m[..., i, k], -1.0, 1.0))
+    first = np.arctan2(-sign * m[..., j, k], m[..., k, k])
+    last = np.arctan2(-sign * m[..., i, j], m[..., i, i])
+    return np.stack([first, mid, last], axis=-1)
+
+
+def to_euler(q: np.ndarray, order: str, degrees: bool = False) -> np.ndarray:
+    """Intrinsic Euler angles of unit quaternions, frame by frame (no continuity).
+
+    q: (..., 4). order: three distinct axes, e.g. "ZXY". Returns (..., 3), the middle angle in
+    [-90, 90] degrees. Near gimbal lock the first angle takes the whole turn about the shared axis.
+    """
+    order = _check_order(order)
+    if len(order) != 3 or len(set(order)) != 3:
+        raise ValueError(f"to_euler needs three distinct axes, got {order!r}")
+    out = _tait_bryan_angles(np.asarray(q, dtype=np.float64), order)
+    _settle_gimbal(out, np.asarray(q, dtype=np.float64), order, fill_first=None)
+    return np.rad2deg(out) if degrees else out
+
+
+_GIMBAL_COS = 1e-6
+
+
+def _settle_gimbal(angles: np.ndarray, q: np.ndarray, order: str, fill_first: np.ndarray | None) -> None:
+    """At gimbal lock the first and last angles share one axis: keep ``fill_first`` (or 0) as the first
+    angle and solve the last one exactly, in place."""
+    locked = np.abs(np.cos(angles[..., 1])) < _GIMBAL_COS
+    if not np.any(locked):
+        return
+    first = np.zeros(angles.shape[:-1]) if fill_first is None else fill_first
+    angles[..., 0] = np.where(locked, first, angles[..., 0])
+    qa = _axis_quaternions(angles[..., 0], _AXES[order[0]])
+    qb = _axis_quaternions(angles[..., 1], _AXES[order[1]])
+    qc = multiply(conjugate(multiply(qa, qb)), q)
+    k = _AXES[order[2]]
+    last = 2.0 * np.arctan2(qc[..., k], qc[..., 3])
+    angles[..., 2] = np.where(locked, last, angles[..., 2])
+
+
+def _wrap(a: np.ndarray) -> np.ndarray:
+    return (a + np.pi) % (2.0 * np.pi) - np.pi
+
+
+def to_euler_continuous(q: np.ndarray, order: str, degrees: bool = False) -> np.ndarray:
+    """Intrinsic Euler angles along axis 0 (frames) that change smoothly from frame to frame.
+
+    q: (F, ..., 4) unit quaternions. Returns (F, ..., 3).
+
+    Each rotation has two Euler solutions, (a, b, c) and (a + pi, pi - b, c + pi). Between consecutive
+    frames we pick the one closer to the previous pick; because the map between the two solutions is an
+    isometry of the wrapped angle distance, the pick is a running parity (cumulative XOR) and needs no
+    Python loop over frames. The chosen angles are then unwrapped, so there are no +-360 jumps. At gimbal
+    lock the first angle holds its last free value and the last angle takes the rest of the turn.
+    """
+    order = _check_order(order)
+    q = np.asarray(q, dtype=np.float64)
+    canon = _tait_bryan_angles(q, order)
+    n = canon.shape[0]
+    if n == 0:
+        return canon
+    # Carry the first angle over gimbal-locked frames from the last free frame (forward fill).
+    locked = np.abs(np.cos(canon[..., 1])) < _GIMBAL_COS
+    if np.any(locked):
+        idx = np.where(locked, 0, np.arange(n).reshape((n,) + (1,) * (locked.ndim - 1)))
+        idx = np.maximum.accumulate(idx, axis=0)
+        fill = np.take_along_axis(canon[..., 0], idx, axis=0)
+        fill = np.where(locked & (idx == 0) & locked[:1], 0.0, fill)
+        _settle_gimbal(canon, q, order, fill_first=fill)
+    alt = np.stack([canon[..., 0] + np.pi, np.pi - canon[..., 1], canon[..., 2] + np.pi], axis=-1)
+    if n > 1:
+        d_same = np.sum(np.abs(_wrap(canon[1:] - canon[:-1])), axis=-1)
+        d_flip = np.sum(np.abs(_wrap(alt[1:] - canon[:-1])), axis=-1)
+        flip = d_flip < d_same - 1e-12
+        parity = np.concatenate([np.zeros((1,) + flip.shape[1:], dtype=bool),
+                                 np.cumsum(flip, axis=0) % 2 == 1], axis=0)
+        chosen = np.where(parity[..., None], alt, canon)
+    else:
+        chosen = canon
+    chosen = _wrap(chosen)
+    chosen = np.unwrap(chosen, axis=0)
+    return np.rad2deg(chosen) if degrees else chosen
+
+
+def slerp(q0: np.ndarray, q1: np.ndarray, t: np.ndarray) -> np.ndarray:
+    """Spherical linear interpolation, shortest path: (..., 4), (..., 4), t (...) -> (..., 4)."""
+    q0 = np.asarray(q0, dtype=np.float64)
+    q1 = np.asarray(q1, dtype=np.float64)
+    t = np.asarray(t, dtype=np.float64)[..., None]
+    d = np.sum(q0 * q1, axis=-1, keepdims=True)
+    q1 = np.where(d < 0, -q1, q1)
+    d = np.abs(d)
+    theta = np.arccos(np.clip(d, -1.0, 1.0))
+    s = np.sin(theta)
+    small = s < 1e-9
+    with np.errstate(invalid="ignore", divide="ignore"):
+        w0 = np.where(small, 1.0 - t, np.sin((1.0 - t) * theta) / np.where(small, 1.0, s))
+        w1 = np.where(small, t, np.sin(t * theta) / np.where(small, 1.0, s))
+    return normalize(w0 * q0 + w1 * q1)
+
+
+def swing_twist(q: np.ndarray, axis: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Split rotations into swing and twist about ``axis`` (in the rotation's own frame).
+
+    q: (..., 4) unit quaternions; axis: (..., 3) unit vectors. Returns (swing, twist), each (..., 4),
+    with q = swing * twist, twist a rotation about ``axis`` and swing a rotation about an axis
+    perpendicular to it.
+    """
+    q = np.asarray(q, dtype=np.float64)
+    axis = np.asarray(axis, dtype=np.float64)
+    proj = np.sum(q[..., :3] * axis, axis=-1, keepdims=True) * axis
+    twist = np.concatenate([np.broadcast_to(proj, q.shape[:-1] + (3,)), q[..., 3:4]], axis=-1)
+    n = np.linalg.norm(twist, axis=-1, keepdims=True)
+    twist = np.where(n > 1e-12, twist / np.where(n > 1e-12, n, 1.0), identity(q.shape[:-1]))
+    swing = multiply(q, conjugate(twist))
+    return swing, twist
+
+
+def make_continuous(q: np.ndarray, axis: int = 0) -> np.ndarray:
+    """Flip quaternion signs so consecutive samples along ``axis`` have a non-negative dot product.
+
+    q: (..., 4). The same rotations come back; only the signs change, as a running parity.
+    """
+    q = np.moveaxis(np.asarray(q, dtype=np.float64), axis, 0)
+    if q.shape[0] < 2:
+        return np.moveaxis(q.copy(), 0, axis)
+    flips = np.sum(q[1:] * q[:-1], axis=-1) < 0
+    parity = np.concatenate([np.zeros((1,) + flips.shape[1:], dtype=bool),
+                             np.cumsum(flips, axis=0) % 2 == 1], axis=0)
+    out = np.where(parity[..., None], -q, q)
+    return np.moveaxis(out, 0, axis)
+
+
+def between_vectors(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Shortest-arc rotations taking directions a to b: (..., 3), (..., 3) -> (..., 4).
+
+    Zero-length inputs give the identity; opposite directions turn about an axis perpendicular to a.
+    """
+    a = np.asarray(a, dtype=np.float64)
+    b = np.asarray(b, dtype=np.float64)
+    na = np.linalg.norm(a, axis=-1, keepdims=True)
+    nb = np.linalg.norm(b, axis=-1, keepdims=True)
+    ok = (na[..., 0] > 1e-12) & (nb[..., 0] > 1e-12)
+    a = a / np.where(na > 1e-12, na, 1.0)
+    b = b / np.where(nb > 1e-12, nb, 1.0)
+    d = np.sum(a * b, axis=-1)
+    c = np.cross(a, b)
+    q = np.concatenate([c, (1.0 + d)[..., None]], axis=-1)
+    opposite = d < -1.0 + 1e-12
+    if np.any(opposite):
+        helper = np.where(np.abs(a[..., 0:1]) < 0.9, np.array([1.0, 0.0, 0.0]), np.array([0.0, 1.0, 0.0]))
+        perp = np.cross(a, helper)
+        perp /= np.linalg.norm(perp, axis=-1, keepdims=True)
+        q = np.where(opposite[..., None], np.concatenate([perp, np.zeros(d.shape + (1,))], axis=-1), q)
+    q = normalize(np.where(ok[..., None], q, identity(q.shape[:-1])))
+    return q
