@@ -1,0 +1,104 @@
+"""Command line: thin click commands over the public API.
+
+Every RetargetError becomes one line on stderr and exit status 2; no traceback.
+"""
+
+from __future__ import annotations
+
+import functools
+import json
+import sys
+
+import click
+
+from .errors import RetargetError
+
+
+def _friendly(func):
+    """Turn library errors into one clear line and exit 2."""
+
+    @functools.wraps(func)
+    def wrapper(*args, **kwargs):
+        try:
+            return func(*args, **kwargs)
+        except RetargetError as exc:
+            click.echo(f"error: {exc}", err=True)
+            sys.exit(2)
+        except KeyboardInterrupt:
+            click.echo("interrupted", err=True)
+            sys.exit(130)
+
+    return wrapper
+
+
+@click.group(context_settings={"help_option_names": ["-h", "--help"]})
+@click.version_option(package_name="retarget")
+def main() -> None:
+    """Put capture takes onto differently built character rigs."""
+
+
+def _axis_option(name: str, help_text: str):
+    return click.option(name, default=None, metavar="AXIS", help=help_text)
+
+
+@main.command("inspect")
+@click.argument("file", type=click.Path(dir_okay=False))
+@click.option("--json", "as_json", is_flag=True, help="Print the summary as JSON.")
+@click.option("--fps", type=float, default=None, help="Override the file's frame rate.")
+@_axis_option("--up", "Override the detected up axis (+X, -Y, ...).")
+@_axis_option("--forward", "Override the detected forward axis.")
+@click.option("--unit-scale", type=float, default=None, metavar="M", help="Override metres per file unit.")
+@_friendly
+def inspect_cmd(file: str, as_json: bool, fps: float | None, up: str | None, forward: str | None,
+                unit_scale: float | None) -> None:
+    """Summarise a clip or rig: joint tree, chains, convention, rest pose, frames, static joints."""
+    from .convention import detect_convention
+    from .describe import summarize
+    from .io import read_motion
+
+    motion = read_motion(file, fps=fps)
+    conv = detect_convention(motion.skeleton, motion).with_overrides(up, forward, unit_scale)
+    summary = summarize(motion, conv)
+    if as_json:
+        click.echo(json.dumps(summary.model_dump(), indent=2))
+        return
+    click.echo(_format_summary(summary))
+
+
+def _format_summary(s) -> str:
+    c = s.convention
+    out = [f"{s.file}", ""]
+    out.append(f"joints       {s.joint_count} (+{s.end_sites} end sites)")
+    out.append(f"frames       {s.frames} at {s.fps:g} fps = {s.duration_s:.2f} s")
+    arm = "" if s.arm_angle_deg is None else f" (upper arms {s.arm_angle_deg:+.0f} deg from horizontal)"
+    out.append(f"rest pose    {s.rest_pose}{arm}")
+    unit = c.units if c.metres_per_unit is None else f"{c.units} ({c.metres_per_unit:g} m per unit)"
+    out.append(f"up           {c.up}  (sure: {c.up_confidence:.2f})")
+    out.append(f"facing       {c.forward}  (sure: {c.forward_confidence:.2f}, from {c.forward_evidence})")
+    height = "" if c.height_file_units is None else f", figure {c.height_file_units:.3g} units tall"
+    out.append(f"units        {unit}{height}")
+    out.append(f"read from    {c.reference_pose} pose")
+    out.append("")
+    out.append("hierarchy (channels; * = never animated)")
+    for j in s.joints:
+        chans = " ".join(_short_channel(ch) for ch in j.channels) or "-"
+        mark = "" if j.animated or s.frames < 2 else " *"
+        out.append(f"  {'  ' * j.depth}{j.name}  [{chans}]{mark}")
+    out.append("")
+    out.append("chains")
+    for ch in s.chains:
+        side = "" if ch.side == "centre" else f" {ch.side}"
+        out.append(f"  {ch.kind + side:<14} {' > '.join(ch.joints)}")
+    if s.frames > 1:
+        out.append("")
+        still = ", ".join(s.static_joints) if s.static_joints else "none"
+        out.append(f"never animated ({len(s.static_joints)}): {still}")
+    return "\n".join(out)
+
+
+def _short_channel(ch: str) -> str:
+    return ch[0] + ("p" if ch.endswith("position") else "r")
+
+
+if __name__ == "__main__":  # pragma: no cover
+    main()
