@@ -150,9 +150,12 @@ def _reach(skeleton: Skeleton) -> tuple[np.ndarray, np.ndarray]:
 
 
 def _geometric_reach(skeleton: Skeleton, pos: np.ndarray) -> np.ndarray:
-    """Per joint: length of the longest path from it down to a leaf, in the reference pose."""
+    """Per joint: length of the longest path from it down to a leaf's end site, in the reference pose.
+
+    A leaf counts its end-site length, so a hand with a long end site outreaches a short twist leaf
+    beside it (both are one joint deep)."""
     n = skeleton.num_joints
-    out = np.zeros(n)
+    out = np.nan_to_num(np.linalg.norm(np.asarray(skeleton.tips, dtype=np.float64), axis=1))
     for j in range(n - 1, 0, -1):
         p = skeleton.parents[j]
         out[p] = max(out[p], out[j] + np.linalg.norm(pos[j] - pos[p]))
@@ -167,11 +170,13 @@ def _main_path(skeleton: Skeleton, start: int, depth: np.ndarray, geo: np.ndarra
     a head with two eyes)."""
     path = [start]
     j = start
+    bone = np.linalg.norm(skeleton.offsets, axis=1)
     while skeleton.children[j]:
-        kids = sorted(skeleton.children[j], key=lambda c: (depth[c], geo[c]), reverse=True)
+        # Reach through a child counts the bone to it, so a hand outreaches a short twist leaf beside it.
+        kids = sorted(skeleton.children[j], key=lambda c: (depth[c], geo[c] + bone[c]), reverse=True)
         if stop_at_split and len(kids) >= 2 and depth[kids[0]] == depth[kids[1]] and depth[kids[0]] >= 1:
             # Equal reach: fingers or eyes. Continue only if one clearly dominates in length.
-            if geo[kids[1]] > 0.6 * geo[kids[0]]:
+            if geo[kids[1]] + bone[kids[1]] > 0.6 * (geo[kids[0]] + bone[kids[0]]):
                 break
         j = kids[0]
         path.append(j)
