@@ -104,8 +104,8 @@ def to_axis_angle(q: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 def angle_between(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     """Angle in radians of the relative rotation between unit quaternions: (..., 4) -> (...)."""
-    d = np.abs(np.sum(np.asarray(a) * np.asarray(b), axis=-1))
-    return 2.0 * np.arccos(np.clip(d, 0.0, 1.0))
+    r = multiply(conjugate(a), b)
+    return 2.0 * np.arctan2(np.linalg.norm(r[..., :3], axis=-1), np.abs(r[..., 3]))
 
 
 def _check_order(order: str) -> str:
