@@ -52,6 +52,7 @@ __all__ = [
     "neutral_frame",
     "bone_frame",
     "leg_length",
+    "standing_height",
     "align",
 ]
 
@@ -211,17 +212,21 @@ def leg_length(body: BodyLayout, positions: np.ndarray) -> float:
     return float(np.mean(out))
 
 
-def _ankle_height(body: BodyLayout, ref: ReferencePose) -> float:
-    """Mean over both legs of the ankle's height above the lowest point of its foot (joints after the
-    ankle and their end sites, and the ankle's own end site) in the reference pose, metres."""
+def standing_height(body: BodyLayout, ref: ReferencePose) -> float:
+    """Height of the pelvis above the soles with the legs straightened, metres: the drop from the pelvis
+    to the hip joints, thigh and shin lengths, and the ankle's height above the lowest point of its foot
+    (joints after the ankle and their end sites), each read from the reference pose, mean of both legs.
+    Straightening makes it independent of how bent the knees are in that pose."""
     out = []
     for leg in body.legs.values():
+        p = ref.positions
         k = leg.joints.index(leg.end)
         foot = list(leg.joints[k:])
-        pts = [ref.positions[j] for j in foot]
-        pts += [ref.tips[j] for j in foot if not np.isnan(ref.tips[j]).any()]
-        heights = np.array(pts)[:, 1]
-        out.append(float(ref.positions[leg.end][1] - heights.min()))
+        pts = [p[j] for j in foot] + [ref.tips[j] for j in foot if not np.isnan(ref.tips[j]).any()]
+        ankle = float(p[leg.end][1] - np.array(pts)[:, 1].min())
+        drop = float(p[body.pelvis][1] - p[leg.root][1])
+        out.append(drop + np.linalg.norm(p[leg.mid] - p[leg.root]) + np.linalg.norm(p[leg.end] - p[leg.mid])
+                   + ankle)
     return float(np.mean(out))
 
 
@@ -256,8 +261,8 @@ class Alignment:
     target_local: (Jt, 4) local rotations of the target's reference pose.
     source_root, target_root: the joints carrying root motion (pelvis and its partner).
     root_scale: target metres per source metre for root motion; ground_offset: metres added to the
-        root height so feet of different build meet the ground (target ankle height minus the scaled
-        source ankle height, both in the reference poses).
+        scaled pelvis height so that a source standing on the ground puts the target on the ground:
+        target standing height minus root_scale times the source's (see standing_height).
     """
 
     source: Skeleton
@@ -368,6 +373,9 @@ def align(source: Skeleton, target: Skeleton, pairs, *,
         sb = partner[b]
         if not (source.is_ancestor(s, sb) and target.is_ancestor(t, b)):
             continue
+        if (np.linalg.norm(sref.positions[sb] - sref.positions[s]) < 1e-6
+                or np.linalg.norm(tref.positions[b] - tref.positions[t]) < 1e-6):
+            continue  # a zero-length span (joints placed on top of each other) has no direction to aim
         path = []
         k = int(target.parents[b])
         while k != t:
@@ -393,8 +401,6 @@ def align(source: Skeleton, target: Skeleton, pairs, *,
         if seg is not None:
             ds = sref.positions[seg.source_end] - sref.positions[s]
             dt = tref.positions[seg.end] - tref.positions[t]
-            if np.linalg.norm(ds) < 1e-6 or np.linalg.norm(dt) < 1e-6:
-                ds = dt = None
         else:
             ds, dt = _own_direction(sbody, sref, s), _own_direction(tbody, tref, t)
         anc = next((a for a in target.ancestors(t) if a in deltas), None)
@@ -445,7 +451,7 @@ def align(source: Skeleton, target: Skeleton, pairs, *,
         if not (np.isfinite(root_scale) and root_scale > 0):
             raise OptionError(f"root scale must be a positive number, got {root_scale}")
         k = float(root_scale)
-    ground = _ankle_height(tbody, tref) - k * _ankle_height(sbody, sref)
+    ground = standing_height(tbody, tref) - k * standing_height(sbody, sref)
 
     return Alignment(source, target, sconv, tconv, pairs, quat.normalize(offsets), tuple(segments),
                      tuple(followers), tuple(fixed), sref, tref, tlocal, int(sroot), int(troot), float(k),

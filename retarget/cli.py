@@ -109,5 +109,82 @@ def _short_channel(ch: str) -> str:
     return ch[0] + ("p" if ch.endswith("position") else "r")
 
 
+def _frame_range(text: str | None) -> tuple[int | None, int | None] | None:
+    """"START:END" (0-based, END excluded, either may be empty) -> (start, end)."""
+    from .errors import OptionError
+
+    if text is None:
+        return None
+    head, sep, tail = text.partition(":")
+    try:
+        if not sep:
+            raise ValueError
+        return (int(head) if head.strip() else None, int(tail) if tail.strip() else None)
+    except ValueError:
+        raise OptionError(f"--frames expects START:END (whole numbers, either may be left out), got {text!r}") \
+            from None
+
+
+@main.command("apply")
+@click.argument("clip", type=click.Path(dir_okay=False))
+@click.option("--rig", required=True, type=click.Path(dir_okay=False),
+              help="Character rig (BVH; its zero pose is the rest pose).")
+@click.option("-m", "--mapping", default=None, type=click.Path(dir_okay=False),
+              help="Joint mapping file; matched automatically when left out.")
+@click.option("--no-contact-fix", is_flag=True, help="Leave foot contacts as the transfer makes them.")
+@click.option("-o", "--output", required=True, type=click.Path(dir_okay=False), help="Output clip (.bvh).")
+@click.option("--in-place", is_flag=True, help="Take the horizontal root travel out.")
+@click.option("--root-scale", type=float, default=None, metavar="K",
+              help="Rig metres per source metre for root motion (default: leg-length ratio).")
+@_axis_option("--source-up", "Override the clip's detected up axis (+X, -Y, ...).")
+@_axis_option("--source-forward", "Override the clip's detected forward axis.")
+@click.option("--source-unit-scale", type=float, default=None, metavar="M", help="Metres per clip unit.")
+@click.option("--source-fps", type=float, default=None, help="Override the clip's frame rate.")
+@_axis_option("--rig-up", "Override the rig's detected up axis.")
+@_axis_option("--rig-forward", "Override the rig's detected forward axis.")
+@click.option("--rig-unit-scale", type=float, default=None, metavar="M", help="Metres per rig unit.")
+@click.option("--frames", "frame_range", default=None, metavar="START:END",
+              help="Only these source frames (0-based, END excluded).")
+@click.option("--fps", type=float, default=None, help="Resample the output to this frame rate.")
+@click.option("--report", "report_path", default=None, type=click.Path(dir_okay=False),
+              help="Also write the full report as JSON.")
+@_friendly
+def apply_cmd(clip: str, rig: str, mapping: str | None, no_contact_fix: bool, output: str, in_place: bool,
+              root_scale: float | None, source_up: str | None, source_forward: str | None,
+              source_unit_scale: float | None, source_fps: float | None, rig_up: str | None,
+              rig_forward: str | None, rig_unit_scale: float | None, frame_range: str | None,
+              fps: float | None, report_path: str | None) -> None:
+    """Put one capture CLIP onto a character RIG and write the result to OUTPUT."""
+    from .io import atomic_write, read_motion, write_motion
+    from .pipeline import retarget_clip
+
+    frames = _frame_range(frame_range)
+    source = read_motion(clip, fps=source_fps)
+    result = retarget_clip(source, rig, mapping, in_place=in_place, root_scale=root_scale,
+                           source_up=source_up, source_forward=source_forward,
+                           source_unit_scale=source_unit_scale, rig_up=rig_up, rig_forward=rig_forward,
+                           rig_unit_scale=rig_unit_scale, frames=frames, fps=fps,
+                           contact_fix=not no_contact_fix)
+    write_motion(output, result.motion)
+    if report_path:
+        atomic_write(report_path, (json.dumps(result.report.model_dump(), indent=2) + "\n").encode())
+    click.echo(_format_apply(result.report, output))
+
+
+def _format_apply(r, output: str) -> str:
+    out = [f"wrote {output}: {r.frames} frames at {r.fps:g} fps, {r.target.joints} joints "
+           f"({r.pairs} mapped from {r.source.joints})"]
+    worst = max(r.joints, key=lambda j: j.aim_correction_max_deg, default=None)
+    if r.direction_error_mean_deg is not None:
+        out.append(f"pose fidelity: bone spans {r.direction_error_mean_deg:.2f} deg from the source on "
+                   f"average, {r.direction_error_max_deg:.2f} deg at worst")
+    if worst is not None:
+        out.append(f"aim correction: up to {worst.aim_correction_max_deg:.1f} deg ({worst.target})")
+    out.append(f"root motion: scale {r.root_scale:.3f}, ground offset {100 * r.ground_offset_m:+.1f} cm"
+               + (", in place" if r.in_place else ""))
+    out.append(f"foot contacts: {r.contact_fix}")
+    out.extend(f"warning: {w}" for w in r.warnings if not w.startswith("foot contacts"))
+    return "\n".join(out)
+
 if __name__ == "__main__":  # pragma: no cover
     main()

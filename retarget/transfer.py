@@ -30,6 +30,10 @@ from .motion import Motion
 
 __all__ = ["transfer", "transfer_world", "remove_travel", "right_product", "left_product"]
 
+# Inside this module a clip's quaternions for one joint are held component-major, (4, F): each of x, y,
+# z, w is one contiguous row, so the products below run on contiguous rows (about twice as fast as
+# (F, 4) rows, whose components are strided). Vectors likewise are (3, F).
+
 
 def right_product(c: np.ndarray) -> np.ndarray:
     """(4, 4) M with q @ M == quat.multiply(q, c) for any q (..., 4): right multiplication by a constant."""
@@ -52,8 +56,90 @@ def _closure(skeleton, joints) -> list[int]:
     return sorted(keep)
 
 
+def _mul(a: np.ndarray, b: np.ndarray, conj_a: bool = False) -> np.ndarray:
+    """Hamilton product a * b (or conj(a) * b) of component-major quaternions (4, F) -> (4, F)."""
+    ax, ay, az, aw = a
+    bx, by, bz, bw = b
+    if conj_a:
+        ax, ay, az = -ax, -ay, -az
+    out = np.empty((4, a.shape[1]))
+    np.multiply(aw, bx, out=out[0])
+    out[0] += ax * bw
+    out[0] += ay * bz
+    out[0] -= az * by
+    np.multiply(aw, by, out=out[1])
+    out[1] -= ax * bz
+    out[1] += ay * bw
+    out[1] += az * bx
+    np.multiply(aw, bz, out=out[2])
+    out[2] += ax * by
+    out[2] -= ay * bx
+    out[2] += az * bw
+    np.multiply(aw, bw, out=out[3])
+    out[3] -= ax * bx
+    out[3] -= ay * by
+    out[3] -= az * bz
+    return out
+
+
+def _rot(q: np.ndarray, v: np.ndarray) -> np.ndarray:
+    """Rotate v (3,) or (3, F) by unit quaternions q (4, F) -> (3, F): v + 2w (u x v) + u x (2 u x v)."""
+    x, y, z, w = q
+    vx, vy, vz = v
+    tx = y * vz - z * vy
+    tx *= 2.0
+    ty = z * vx - x * vz
+    ty *= 2.0
+    tz = x * vy - y * vx
+    tz *= 2.0
+    o = np.empty((3, q.shape[1]))
+    np.multiply(w, tx, out=o[0])
+    o[0] += y * tz
+    o[0] -= z * ty
+    o[0] += vx
+    np.multiply(w, ty, out=o[1])
+    o[1] += z * tx
+    o[1] -= x * tz
+    o[1] += vy
+    np.multiply(w, tz, out=o[2])
+    o[2] += x * ty
+    o[2] -= y * tx
+    o[2] += vz
+    return o
+
+
+def _norm(v: np.ndarray) -> np.ndarray:
+    """Lengths of component-major vectors (k, F) -> (F,)."""
+    return np.sqrt(np.einsum("ij,ij->j", v, v))
+
+
+def _between(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Shortest-arc rotations (4, F) taking directions a (3, F) onto b (3, F); identity where either has
+    no length; opposite directions turn half a turn about an axis perpendicular to a (as
+    quat.between_vectors, which handles those rare frames)."""
+    na, nb = _norm(a), _norm(b)
+    q = np.empty((4, a.shape[1]))
+    q[0] = a[1] * b[2] - a[2] * b[1]
+    q[1] = a[2] * b[0] - a[0] * b[2]
+    q[2] = a[0] * b[1] - a[1] * b[0]
+    q[3] = na * nb + np.einsum("ij,ij->j", a, b)
+    n = _norm(q)
+    bad = (na <= 1e-12) | (nb <= 1e-12) | (n <= 1e-12 * np.maximum(na * nb, 1e-300))
+    q /= np.where(bad, 1.0, n)
+    if np.any(bad):
+        with np.errstate(invalid="ignore", divide="ignore"):
+            q[:, bad] = quat.between_vectors(a[:, bad].T, b[:, bad].T).T
+    return q
+
+
+def _const(q: np.ndarray, m: np.ndarray) -> np.ndarray:
+    """Apply a constant product given as a (4, 4) row-vector matrix (right_product / left_product) to
+    component-major quaternions (4, F)."""
+    return m.T @ q
+
+
 def _source_world(motion: Motion, rot_joints, pos_joints) -> tuple[dict, dict]:
-    """File-space global rotations {j: (F, 4)} and positions {j: (F, 3)} of the joints asked for (and
+    """File-space global rotations {j: (4, F)} and positions {j: (3, F)} of the joints asked for (and
     their ancestors), by forward kinematics over all frames at once."""
     sk = motion.skeleton
     rots: dict[int, np.ndarray] = {}
@@ -62,15 +148,16 @@ def _source_world(motion: Motion, rot_joints, pos_joints) -> tuple[dict, dict]:
     tr = motion.translations
     for j in _closure(sk, list(rot_joints) + list(pos_joints)):
         p = int(sk.parents[j])
+        local = np.ascontiguousarray(motion.rotations[:, j].T)
         if p < 0:
-            rots[j] = motion.rotations[:, j]
+            rots[j] = local
             if j in need_pos:
-                pos[j] = motion.root_positions
+                pos[j] = np.ascontiguousarray(motion.root_positions.T)
             continue
-        rots[j] = quat.multiply(rots[p], motion.rotations[:, j])
+        rots[j] = _mul(rots[p], local)
         if j in need_pos:
-            off = sk.offsets[j] if tr is None else tr[:, j]
-            pos[j] = pos[p] + quat.rotate(rots[p], off)
+            off = sk.offsets[j] if tr is None else np.ascontiguousarray(tr[:, j].T)
+            pos[j] = pos[p] + _rot(rots[p], off)
     return rots, pos
 
 
@@ -82,7 +169,8 @@ def remove_travel(path: np.ndarray, fps: float, seconds: float = 1.0) -> np.ndar
     if f == 0:
         return out
     w = max(1, min(f, int(round(seconds * fps))))
-    w -= (w + 1) % 2 if w > 1 else 0  # odd window, centred
+    if w % 2 == 0:
+        w -= 1  # odd window, centred
     half = w // 2
     xz = out[:, [0, 2]]
     padded = np.concatenate([np.repeat(xz[:1], half, axis=0), xz, np.repeat(xz[-1:], half, axis=0)])
@@ -92,116 +180,124 @@ def remove_travel(path: np.ndarray, fps: float, seconds: float = 1.0) -> np.ndar
     return out
 
 
-def transfer_world(motion: Motion, alignment: Alignment, in_place: bool = False
-                   ) -> tuple[np.ndarray, np.ndarray, dict]:
-    """Target global rotations and pelvis path in canonical space.
-
-    motion: a clip on alignment.source. Returns (rotations (F, Jt, 4) canonical globals, pelvis (F, 3)
-    canonical metres of alignment.target_root, source_world) where source_world holds the canonical
-    source positions {joint: (F, 3)} used for aiming, for reports.
-    """
-    al = alignment
-    src, tgt = al.source, al.target
+def _carry(motion: Motion, al: Alignment, in_place: bool
+           ) -> tuple[list[np.ndarray], np.ndarray, dict[int, tuple[np.ndarray, np.ndarray]]]:
+    """Steps 1-4 and root motion. Returns (per target joint its canonical global rotations (4, F), the
+    pelvis path (F, 3) in canonical metres, and per span start joint the aim correction angle and the
+    remaining direction error, both (F,) radians)."""
+    tgt = al.target
     f = motion.num_frames
     nt = tgt.num_joints
     qs = file_to_canonical_rotation(al.source_convention)
-    cs = al.source_convention.file_to_canonical()
-    ss = al.source_convention.scale
+    to_canonical = al.source_convention.scale * al.source_convention.file_to_canonical()
 
-    seg_pos_joints = {j for sg in al.segments for j in (sg.source_start, sg.source_end)}
-    srot, spos = _source_world(motion, al.pairs[:, 0], seg_pos_joints | {al.source_root})
-    source_world = {j: ss * (p @ cs.T) for j, p in spos.items() if j in seg_pos_joints | {al.source_root}}
+    ends = {j for sg in al.segments for j in (sg.source_start, sg.source_end)} | {al.source_root}
+    srot, spos = _source_world(motion, al.pairs[:, 0], ends)
+    world = {j: to_canonical @ spos[j] for j in ends}
 
     g: list[np.ndarray | None] = [None] * nt
     lq = left_product(qs)
     for (s, t), q in zip(al.pairs, al.offsets):
-        g[int(t)] = srot[int(s)] @ (lq @ right_product(q))
+        g[int(t)] = _const(srot[int(s)], lq @ right_product(q))
 
     ref = al.target_reference.rotations
     offs = tgt.offsets
+    checks: dict[int, tuple[np.ndarray, np.ndarray]] = {}
     for sg in al.segments:
         if sg.between:
-            da = quat.multiply(g[sg.start], quat.conjugate(ref[sg.start]))
-            db = quat.multiply(g[sg.end], quat.conjugate(ref[sg.end]))
+            da = _const(g[sg.start], right_product(quat.conjugate(ref[sg.start]))).T
+            db = _const(g[sg.end], right_product(quat.conjugate(ref[sg.end]))).T
             for k, w in zip(sg.between, sg.weights):
-                g[k] = quat.slerp(da, db, np.full(f, w)) @ right_product(ref[k])
+                g[k] = _const(np.ascontiguousarray(quat.slerp(da, db, np.full(f, w)).T), right_product(ref[k]))
         chain = (sg.start,) + sg.between
-        nxt = sg.between + (sg.end,)
-        vt = np.zeros((f, 3))
-        for k, c in zip(chain, nxt):
-            vt += quat.rotate(g[k], offs[c])
-        vs = source_world[sg.source_end] - source_world[sg.source_start]
-        aim = quat.between_vectors(vt, vs)
+        vt = np.zeros((3, f))
+        for k, c in zip(chain, sg.between + (sg.end,)):
+            vt += _rot(g[k], offs[c])
+        vs = world[sg.source_end] - world[sg.source_start]
+        aim = _between(vt, vs)
         for k in chain:
-            g[k] = quat.multiply(aim, g[k])
+            g[k] = _mul(aim, g[k])
+        # Checks for the report: how far the span was turned, and how far the turned span still is from
+        # the source span (zero up to rounding unless a span has no length).
+        done = _rot(aim, vt)
+        cos = np.einsum("ij,ij->j", done, vs) / np.maximum(_norm(done) * _norm(vs), 1e-300)
+        angle = 2.0 * np.arctan2(_norm(aim[:3]), np.abs(aim[3]))
+        checks[sg.start] = (angle, np.arccos(np.clip(cos, -1.0, 1.0)))
 
     followers = set(al.followers)
     for j in range(nt):
         if g[j] is not None:
             continue
         if j in followers:
-            g[j] = g[int(tgt.parents[j])] @ right_product(al.target_local[j])
+            g[j] = _const(g[int(tgt.parents[j])], right_product(al.target_local[j]))
         else:
-            g[j] = np.broadcast_to(ref[j], (f, 4))
-    rotations = np.stack(g, axis=1)
+            g[j] = np.repeat(ref[j][:, None], f, axis=1)
 
-    pelvis = al.root_scale * source_world[al.source_root] + al.ground_offset * UP
+    pelvis = al.root_scale * world[al.source_root].T + al.ground_offset * UP
     if in_place:
         pelvis = remove_travel(pelvis, motion.fps)
-    return rotations, pelvis, source_world
+    return g, pelvis, checks
 
 
-def transfer(motion: Motion, alignment: Alignment, in_place: bool = False) -> Motion:
+def transfer_world(motion: Motion, alignment: Alignment, in_place: bool = False
+                   ) -> tuple[np.ndarray, np.ndarray, dict[int, tuple[np.ndarray, np.ndarray]]]:
+    """Target global rotations and pelvis path in canonical space.
+
+    motion: a clip on alignment.source. Returns (rotations (F, Jt, 4) canonical globals, pelvis (F, 3)
+    canonical metres of alignment.target_root, checks) where checks maps each span's start joint to
+    (aim correction angle (F,), remaining angle between target and source span (F,)), radians.
+    """
+    g, pelvis, checks = _carry(motion, alignment, in_place)
+    return np.stack([q.T for q in g], axis=1), pelvis, checks
+
+
+def transfer(motion: Motion, alignment: Alignment, in_place: bool = False, checks: dict | None = None
+             ) -> Motion:
     """Carry a clip on alignment.source onto alignment.target.
 
     Returns a Motion on the target skeleton (its names, offsets and channel layout) in the target's file
     axes and units, at the source's frame rate. in_place: take the horizontal root travel out.
+    checks: a dict to receive transfer_world's per-span checks, for reports.
     """
     al = alignment
     tgt = al.target
     f, nt = motion.num_frames, tgt.num_joints
-    grot, pelvis, _ = transfer_world(motion, al, in_place)
+    g, pelvis, found = _carry(motion, al, in_place)
+    if checks is not None:
+        checks.update(found)
 
     # Local rotations: the change of axes cancels between parent and child, only the root keeps it.
     qt_inv = quat.conjugate(file_to_canonical_rotation(al.target_convention))
-    local = np.empty((f, nt, 4))
-    local[:, 0] = grot[:, 0] @ left_product(qt_inv)
+    local = np.empty((nt, 4, f))
+    local[0] = _const(g[0], left_product(qt_inv))
     for j in range(1, nt):
-        local[:, j] = quat.multiply(quat.conjugate(grot[:, int(tgt.parents[j])]), grot[:, j])
+        local[j] = _mul(g[int(tgt.parents[j])], g[j], conj_a=True)
+    local = local.transpose(2, 0, 1)
 
     ct = al.target_convention.file_to_canonical()
     st = al.target_convention.scale
     m = al.target_root
     translations = None
-    ref_pos = al.target_reference.positions
     if m == 0:
         root = pelvis
     else:
-        path = [m] + tgt.ancestors(m)
-        path.reverse()  # root ... m
-        if tgt.has_position_channels(m) and all(g_is_fixed(al, k) for k in path[:-1]):
+        path = tgt.ancestors(m)[::-1] + [m]  # root ... pelvis
+        fixed = set(al.fixed)
+        if tgt.has_position_channels(m) and all(k in fixed for k in path[:-1]):
             # The pelvis has its own position channels under a static root: move the pelvis, keep the root.
-            root = np.broadcast_to(ref_pos[0], (f, 3))
-            parent_pos = np.broadcast_to(ref_pos[path[-2]], (f, 3))
-            world = (pelvis - parent_pos) / st  # canonical axes, target units
-            local_t = quat.rotate(quat.conjugate(grot[:, path[-2]]), world)
-            translations = motion_translations(tgt, f)
-            translations[:, m] = local_t
+            ref_pos = al.target_reference.positions
+            root = np.tile(ref_pos[0], (f, 1))
+            offset = (pelvis - ref_pos[path[-2]]).T / st  # canonical axes, target units
+            parent = g[path[-2]].copy()
+            parent[:3] *= -1.0
+            translations = np.broadcast_to(tgt.offsets, (f, nt, 3)).copy()
+            translations[:, m] = _rot(parent, offset).T
         else:
             # Place the root so that the pelvis lands on its path.
             root = np.array(pelvis)
             for a, c in zip(path[:-1], path[1:]):
-                root -= st * quat.rotate(grot[:, a], tgt.offsets[c])
-    root_file = (np.asarray(root) @ ct) / st
+                root -= st * _rot(g[a], tgt.offsets[c]).T
+    root_file = (root @ ct) / st
     if translations is not None:
         translations[:, 0] = root_file
     return Motion(tgt, local, root_file, motion.fps, translations, source=motion.source)
-
-
-def g_is_fixed(al: Alignment, j: int) -> bool:
-    return j in al.fixed
-
-
-def motion_translations(skeleton, frames: int) -> np.ndarray:
-    """(F, J, 3) rest offsets on every frame."""
-    return np.broadcast_to(skeleton.offsets, (frames, skeleton.num_joints, 3)).copy()
