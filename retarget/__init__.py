@@ -34,5 +34,20 @@ __all__ = [
     "SkeletonError",
     "MappingError",
     "OptionError",
+    "retarget_clip",
+    "Result",
+    "RetargetReport",
+    "RetargetOptions",
 ]
 __version__ = "0.1.0"
+
+# The pipeline pulls in pydantic; it is loaded on first use so the command line starts fast.
+_LAZY = {"retarget_clip", "Result", "RetargetReport", "RetargetOptions"}
+
+
+def __getattr__(name: str):
+    if name in _LAZY:
+        from . import pipeline
+
+        return getattr(pipeline, name)
+    raise AttributeError(f"module 'retarget' has no attribute {name!r}")

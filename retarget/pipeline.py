@@ -147,8 +147,11 @@ def _pairs_from(mapping, source: Skeleton, target: Skeleton, smotion: Motion, tm
         m = match(source, target, source_motion=smotion, target_motion=tmotion)
         return list(m.index_pairs(source, target)), m
     if isinstance(mapping, (str, os.PathLike)):
-        from .mapping import load_mapping
-
+        try:
+            from .mapping import load_mapping
+        except ImportError:
+            raise MappingError("reading mapping files is not available in this version; leave the mapping "
+                               "out to match automatically", path=str(mapping)) from None
         m = load_mapping(mapping, source, target)
         return list(m.index_pairs(source, target)), m
     if hasattr(mapping, "index_pairs"):

@@ -163,17 +163,23 @@ def _source_world(motion: Motion, rot_joints, pos_joints) -> tuple[dict, dict]:
 
 def remove_travel(path: np.ndarray, fps: float, seconds: float = 1.0) -> np.ndarray:
     """Horizontal travel taken out of a canonical root path (F, 3): the centred moving average of x and z
-    over ``seconds`` is subtracted, so the root sways about the origin but no longer travels; y is kept."""
+    over ``seconds`` is subtracted, so the root sways about the origin but no longer travels; y is kept.
+    The ends are padded by point reflection, so steady travel is removed right up to the first and last
+    frames."""
     f = path.shape[0]
     out = np.array(path, dtype=np.float64, copy=True)
-    if f == 0:
+    if f < 2:
+        out[:, [0, 2]] = 0.0
         return out
-    w = max(1, min(f, int(round(seconds * fps))))
+    w = max(1, min(2 * f - 1, int(round(seconds * fps))))
     if w % 2 == 0:
         w -= 1  # odd window, centred
-    half = w // 2
+    half = min(w // 2, f - 1)
+    w = 2 * half + 1
     xz = out[:, [0, 2]]
-    padded = np.concatenate([np.repeat(xz[:1], half, axis=0), xz, np.repeat(xz[-1:], half, axis=0)])
+    head = 2.0 * xz[:1] - xz[half:0:-1]
+    tail = 2.0 * xz[-1:] - xz[-2:-half - 2:-1]
+    padded = np.concatenate([head, xz, tail])
     c = np.concatenate([np.zeros((1, 2)), np.cumsum(padded, axis=0)])
     mean = (c[w:] - c[:-w]) / w
     out[:, [0, 2]] = xz - mean
@@ -209,19 +215,40 @@ def _carry(motion: Motion, al: Alignment, in_place: bool
             db = _const(g[sg.end], right_product(quat.conjugate(ref[sg.end]))).T
             for k, w in zip(sg.between, sg.weights):
                 g[k] = _const(np.ascontiguousarray(quat.slerp(da, db, np.full(f, w)).T), right_product(ref[k]))
-        chain = (sg.start,) + sg.between
-        vt = np.zeros((3, f))
-        for k, c in zip(chain, sg.between + (sg.end,)):
-            vt += _rot(g[k], offs[c])
         vs = world[sg.source_end] - world[sg.source_start]
+        if sg.between:
+            # Keep the mapped start joint as transferred and bend the in-between joints instead: turn the
+            # sub-chain after the start joint about its first joint so the span's end lands on the ray
+            # from the start joint along the source span (the far crossing of that ray with the sphere
+            # the sub-chain can reach). Frames where it cannot reach turn the whole span (below).
+            first = _rot(g[sg.start], offs[sg.between[0]])
+            rest = np.zeros((3, f))
+            for k, c in zip(sg.between, sg.between[1:] + (sg.end,)):
+                rest += _rot(g[k], offs[c])
+            ray = vs / np.maximum(_norm(vs), 1e-300)
+            along = np.einsum("ij,ij->j", ray, first)
+            disc = along * along - np.einsum("ij,ij->j", first, first) + np.einsum("ij,ij->j", rest, rest)
+            reach = along + np.sqrt(np.maximum(disc, 0.0))
+            bend = _between(rest, reach * ray - first)
+            fits = (disc >= 0.0) & (reach > 0.0)
+            bend[:, ~fits] = np.array([[0.0], [0.0], [0.0], [1.0]])
+            for k in sg.between:
+                g[k] = _mul(bend, g[k])
+            vt = first + _rot(bend, rest)
+        else:
+            bend = None
+            vt = _rot(g[sg.start], offs[sg.end])
         aim = _between(vt, vs)
-        for k in chain:
+        for k in (sg.start,) + sg.between:
             g[k] = _mul(aim, g[k])
-        # Checks for the report: how far the span was turned, and how far the turned span still is from
-        # the source span (zero up to rounding unless a span has no length).
+        # Checks for the report: how far the span was turned (start joint or in-between joints), and how
+        # far the turned span still is from the source span (zero up to rounding unless a span has no
+        # length).
         done = _rot(aim, vt)
         cos = np.einsum("ij,ij->j", done, vs) / np.maximum(_norm(done) * _norm(vs), 1e-300)
         angle = 2.0 * np.arctan2(_norm(aim[:3]), np.abs(aim[3]))
+        if bend is not None:
+            angle = np.maximum(angle, 2.0 * np.arctan2(_norm(bend[:3]), np.abs(bend[3])))
         checks[sg.start] = (angle, np.arccos(np.clip(cos, -1.0, 1.0)))
 
     followers = set(al.followers)

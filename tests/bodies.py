@@ -63,12 +63,19 @@ _BODY = _CENTRE + _side("l", 1.0) + _side("r", -1.0)
 
 
 def _order_topologically(rows):
-    out, placed = [], set()
-    while len(out) < len(rows):
+    """Depth-first order from the root (children in listing order), as a BVH file lists joints, so a
+    rig written to a file and read back keeps its joint indices."""
+    out = []
+
+    def visit(name):
         for r in rows:
-            if r[0] not in placed and (r[1] is None or r[1] in placed):
+            if r[0] == name:
                 out.append(r)
-                placed.add(r[0])
+        for r in rows:
+            if r[1] == name:
+                visit(r[0])
+
+    visit(rows[0][0])
     return out
 
 
@@ -116,6 +123,7 @@ class RigSpec:
     root_channels: tuple = ("Xposition", "Yposition", "Zposition", "Zrotation", "Xrotation", "Yrotation")
     channels: tuple = ("Zrotation", "Xrotation", "Yrotation")
     degenerate: bool = False
+    proportions: dict = field(default_factory=dict)  # body joint -> factor on its offset and end site
 
     @property
     def convention(self) -> Convention:
@@ -136,22 +144,38 @@ class Rig:
         return self.spec.convention
 
 
-def posture_pose(posture: dict) -> tuple[np.ndarray, np.ndarray]:
+def scaled_body(proportions: dict) -> tuple[np.ndarray, np.ndarray]:
+    """Body offsets and tips with some bones scaled: proportions maps body joint -> factor."""
+    offsets, tips = OFFSETS.copy(), TIPS.copy()
+    for name, k in proportions.items():
+        offsets[INDEX[name]] *= k
+        tips[INDEX[name]] *= k
+    return offsets, tips
+
+
+def posture_pose(posture: dict, proportions: dict | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Body globals and positions (canonical) in a posture; with proportions the body stands on y = 0."""
     local = quat.identity((1, N))
     for name, q in posture.items():
         local[0, INDEX[name]] = q
-    g, p = forward_kinematics(BODY, local, OFFSETS[:1])
-    return g[0], p[0]
+    offsets, tips = scaled_body(proportions or {})
+    sk = BODY.with_rest(offsets=offsets, tips=tips)
+    g, p = forward_kinematics(sk, local, offsets[:1])
+    g, p = g[0], p[0]
+    if proportions:
+        ends = p + quat.rotate(g, np.nan_to_num(tips)) + np.where(np.isnan(tips), np.nan, 0.0)
+        p = p - np.array([0.0, np.nanmin(np.concatenate([p[:, 1], ends[:, 1]])), 0.0])
+    return g, p
 
 
-def _chain_end(j: int, pos: np.ndarray, grot: np.ndarray) -> np.ndarray | None:
+def _chain_end(j: int, pos: np.ndarray, grot: np.ndarray, tips: np.ndarray = TIPS) -> np.ndarray | None:
     """Follow the body's first children from j to a leaf; its tip position (or the leaf position)."""
     k = j
     kids = BODY.children
     while kids[k]:
         k = kids[k][0]
-    if not np.isnan(TIPS[k]).any():
-        return pos[k] + quat.rotate(grot[k], TIPS[k])
+    if not np.isnan(tips[k]).any():
+        return pos[k] + quat.rotate(grot[k], tips[k])
     return pos[k] if k != j else None
 
 
@@ -163,7 +187,8 @@ def build_rig(spec: RigSpec) -> Rig:
     c = conv.file_to_canonical()
     qc = quat.from_matrix(c)
     s = spec.unit
-    gpb, ppb = posture_pose(spec.posture)
+    gpb, ppb = posture_pose(spec.posture, spec.proportions)
+    _, btips = scaled_body(spec.proportions)
     kept = set(keep)
 
     def kept_parent(b: int) -> int:
@@ -184,7 +209,7 @@ def build_rig(spec: RigSpec) -> Rig:
                 main = max(kids, key=lambda k: _subtree(bidx[k], kept))
                 d = ppb[bidx[main]] - ppb[b]
             else:
-                end = _chain_end(int(b), ppb, gpb)
+                end = _chain_end(int(b), ppb, gpb, btips)
                 d = (end - ppb[b]) if end is not None else np.array([1.0, 0.0, 0.0])
             x = d / np.linalg.norm(d)
             y = np.array([0.0, 0.0, 1.0]) - x[2] * x
@@ -200,7 +225,7 @@ def build_rig(spec: RigSpec) -> Rig:
     tips = np.full((nj, 3), np.nan)
     for j in range(nj):
         if j not in parents:
-            end = _chain_end(int(bidx[j]), ppb, gpb)
+            end = _chain_end(int(bidx[j]), ppb, gpb, btips)
             if spec.degenerate:
                 tips[j] = 0.0  # zero-length end sites, as some exporters write
             elif end is not None:
@@ -382,3 +407,48 @@ def character_spec(**over) -> RigSpec:
 
 # Body joints some rig above drops while others keep them: they only twist in test motions.
 DROPPED = ("spine1", "spine3", "neck2", "collar_l", "collar_r", "buttock_l", "buttock_r")
+
+
+# ----- measures ---------------------------------------------------------------------------------------
+
+def segment_angles(motion_a: Motion, rig_a: Rig, motion_b: Motion, rig_b: Rig) -> dict:
+    """Per body segment of SEGMENTS present on both rigs: the angle in degrees, per frame, between its
+    world direction in clip a and in clip b (both read through each rig's own known convention)."""
+    _, pa = canonical_world(motion_a, rig_a.convention)
+    _, pb = canonical_world(motion_b, rig_b.convention)
+    ia = {NAMES[b]: j for j, b in enumerate(rig_a.body_index)}
+    ib = {NAMES[b]: j for j, b in enumerate(rig_b.body_index)}
+    out = {}
+    for s, e in SEGMENTS:
+        if s in ia and e in ia and s in ib and e in ib:
+            da = pa[:, ia[e]] - pa[:, ia[s]]
+            db = pb[:, ib[e]] - pb[:, ib[s]]
+            c = np.sum(da * db, -1) / (np.linalg.norm(da, axis=-1) * np.linalg.norm(db, axis=-1))
+            out[(s, e)] = np.degrees(np.arccos(np.clip(c, -1.0, 1.0)))
+    return out
+
+
+def rotation_angles(motion_a: Motion, rig_a: Rig, motion_b: Motion, rig_b: Rig, joints=None) -> dict:
+    """Per body joint kept by both rigs (or the ones named): the angle in degrees, per frame, between the
+    joint's canonical global rotation in clip a and in clip b, each mapped back to the body's frame (so a
+    rig's own joint frame does not count)."""
+    ga, _ = canonical_world(motion_a, rig_a.convention)
+    gb, _ = canonical_world(motion_b, rig_b.convention)
+    ia = {NAMES[b]: j for j, b in enumerate(rig_a.body_index)}
+    ib = {NAMES[b]: j for j, b in enumerate(rig_b.body_index)}
+    out = {}
+    for name in joints or [n for n in ia if n in ib]:
+        ja, jb = ia[name], ib[name]
+        # Body orientation = rig global * (rig frame)^-1 * body posture global.
+        ba = quat.multiply(ga[:, ja], quat.multiply(quat.conjugate(rig_a.frames[ja]),
+                                                    rig_a.posture_globals[rig_a.body_index[ja]]))
+        bb = quat.multiply(gb[:, jb], quat.multiply(quat.conjugate(rig_b.frames[jb]),
+                                                    rig_b.posture_globals[rig_b.body_index[jb]]))
+        out[name] = np.degrees(quat.angle_between(ba, bb))
+    return out
+
+
+def summary(angles: dict) -> tuple[float, float]:
+    """(mean, max) over all frames and entries of a dict of per-frame angle arrays."""
+    allv = np.concatenate([np.ravel(v) for v in angles.values()])
+    return float(allv.mean()), float(allv.max())
