@@ -383,8 +383,9 @@ def build_preview(source: Motion, target: Motion, *, source_convention=None, tar
         "numbers": report_numbers(numbers),
     }
     text = json.dumps(data, separators=(",", ":"), ensure_ascii=True, allow_nan=False)
-    # Inside a script element only "</" can end it early; "<\/" reads the same to the JSON parser.
-    text = text.replace("</", "<\\/")
+    # No "<" at all inside the script element (so neither "</script" nor "<!--" can change how the page
+    # parses it); the JSON parser reads the escape back as "<".
+    text = text.replace("<", "\\u003c")
     return render_page(html.escape(title or _default_title(src, tgt)), text)
 
 
@@ -503,7 +504,7 @@ def plot_clip(folder: str | os.PathLike, source: Motion, target: Motion, *, befo
                                     color=_C_CONTACT, alpha=0.25, lw=0, label=f"contact ({key})")
             ax.axhline(0.0, color="#999999", lw=0.8)
             ax.set_ylabel(f"{foot} foot\nheight (cm)")
-            ax.legend(loc="upper right", fontsize=8, frameon=False)
+            ax.legend(loc="upper right", fontsize=8, framealpha=0.85)
             ax.grid(alpha=0.25)
         axes[-1, 0].set_xlabel("time (s)")
         fig.suptitle(f"{head}foot height above the ground")
@@ -553,6 +554,8 @@ def plot_clip(folder: str | os.PathLike, source: Motion, target: Motion, *, befo
         ax.barh(y, mean, height=0.45, color=_C_TARGET, label="mean")
         ax.set_yticks(y, names, fontsize=8)
         ax.invert_yaxis()
+        top = float(np.nanmax(p95)) if np.isfinite(p95).any() else 0.0
+        ax.set_xlim(0.0, max(5.0, 1.08 * top))  # a perfect match reads as empty bars on a readable scale
         ax.set_xlabel("angle to the source segment (degrees)")
         ax.legend(loc="lower right", fontsize=8, frameon=False)
         ax.grid(axis="x", alpha=0.25)
