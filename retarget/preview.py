@@ -44,6 +44,8 @@ __all__ = [
     "foot_slide",
     "segment_angles",
     "report_numbers",
+    "contact_flags",
+    "mapping_pairs",
 ]
 
 FORMAT = "retarget-preview"
@@ -119,6 +121,7 @@ def prepare_side(motion: Motion, convention=None, label: str = "") -> PreviewSid
     body = _body(motion)
     if convention is None:
         convention = detect_convention(skel, motion, body=body) if body is not None else Convention()
+    _check_finite(motion)
     grot, gpos = motion.global_transforms()
     tips = np.asarray(skel.tips)
     reach = float(np.abs(skel.offsets).max(initial=0.0))
@@ -129,12 +132,6 @@ def prepare_side(motion: Motion, convention=None, label: str = "") -> PreviewSid
     pts = np.concatenate([gpos, tip_pos], axis=1)
     to_canon = convention.file_to_canonical() * convention.scale
     pts = pts @ to_canon.T
-    bad = ~np.isfinite(pts).all(axis=2)
-    if bad.any():
-        f, p = np.argwhere(bad)[0]
-        joint = skel.names[p] if p < skel.num_joints else f"end site of {skel.names[tip_of[p - skel.num_joints]]}"
-        raise RetargetError(f"position is not a finite number at frame {f}, joint {joint!r}",
-                            path=motion.source or skel.source)
     parents = np.concatenate([skel.parents, tip_of]).astype(np.int64)
 
     j = skel.num_joints
@@ -184,6 +181,21 @@ def prepare_side(motion: Motion, convention=None, label: str = "") -> PreviewSid
     anchor = body.pelvis if body is not None else 0
     return PreviewSide(label, str(motion.source or skel.source or ""), motion.fps, pts, parents, tip_of,
                        tuple(skel.names), side_all, feet, ankles, head, ground, height, anchor, loose)
+
+
+def _check_finite(motion: Motion) -> None:
+    """RetargetError naming the first frame and joint whose rotation or translation is not a number."""
+    names = motion.skeleton.names
+    checks = [("rotation", motion.rotations, lambda j: names[j]),
+              ("root position", motion.root_positions[:, None], lambda j: names[0])]
+    if motion.translations is not None:
+        checks.append(("translation", motion.translations, lambda j: names[j]))
+    for what, arr, name in checks:
+        bad = ~np.isfinite(arr).all(axis=-1)
+        if bad.any():
+            f, j = np.argwhere(bad)[0]
+            raise RetargetError(f"{what} is not a finite number at frame {f}, joint {name(j)!r}",
+                                path=motion.source or motion.skeleton.source)
 
 
 def _frame_map(n_from: int, fps_from: float, n_to: int, fps_to: float) -> np.ndarray:
@@ -330,6 +342,34 @@ def report_numbers(report) -> dict:
     return _jsonable(report)
 
 
+def contact_flags(contacts) -> dict[str, np.ndarray] | None:
+    """Contact flags as {foot key: (F,) bool}, from a mapping, or from an object with ``flags`` (F, K) and
+    foot names in ``feet`` or ``names`` (K,); None passes through."""
+    if contacts is None or isinstance(contacts, dict):
+        return contacts
+    flags = np.asarray(getattr(contacts, "flags", None))
+    keys = getattr(contacts, "feet", None) or getattr(contacts, "names", None)
+    if flags.ndim != 2 or keys is None or len(keys) != flags.shape[1]:
+        raise OptionError("contacts must map foot names to flags, or carry flags (F, K) with K foot names")
+    return {str(k): flags[:, i] for i, k in enumerate(keys)}
+
+
+def mapping_pairs(mapping) -> list[tuple[str, str]] | None:
+    """(source, target) joint names from a mapping with ``pairs`` (items with .source/.target or keys)."""
+    pairs = getattr(mapping, "pairs", None) if not isinstance(mapping, dict) else mapping.get("pairs")
+    if pairs is None:
+        return None
+    out = []
+    for p in pairs:
+        if isinstance(p, dict):
+            out.append((str(p["source"]), str(p["target"])))
+        elif isinstance(p, (tuple, list)):
+            out.append((str(p[0]), str(p[1])))
+        else:
+            out.append((str(p.source), str(p.target)))
+    return out
+
+
 def _side_json(side: PreviewSide) -> dict:
     d = {
         "label": side.label,
@@ -348,7 +388,7 @@ def _side_json(side: PreviewSide) -> dict:
         "loose": [int(q) for q in np.flatnonzero(side.loose)],
         "facts": {
             "frames": side.num_frames,
-            "frame rate": f"{side.fps:g} fps",
+            "frame rate": f"{side.fps:.4g} fps",
             "duration": f"{max(side.num_frames - 1, 0) / side.fps:.2f} s",
             "joints": side.num_joints,
             "figure height": f"{side.height:.2f} m",
@@ -512,8 +552,8 @@ def plot_clip(folder: str | os.PathLike, source: Motion, target: Motion, *, befo
         written.append(_save(fig, folder / f"{stem}_feet.png"))
         plt.close(fig)
 
-    if resolved:
-        keys = list(resolved)
+    keys = [k for k, e in resolved.items() if e["source"] is not None or e["target"] is not None]
+    if keys:
         fig, axes = plt.subplots(1, len(keys), figsize=(4.6 * len(keys) + 0.4, 3.4), squeeze=False)
         for ax, key in zip(axes[0], keys):
             e = resolved[key]

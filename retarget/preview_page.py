@@ -161,7 +161,7 @@ label.opt { color: var(--dim); white-space: nowrap; display: flex; align-items: 
   var slider = el("frame"), clock = el("clock"), panel = el("panel");
   slider.max = String(F - 1);
   el("sub").textContent = src.joints.length + " joints \u2192 " + tgt.joints.length + " joints \u00b7 " +
-    F + " frames at " + (+src.fps.toFixed(3)) + " fps";
+    F + " frames at " + (+src.fps.toPrecision(4)) + " fps";
 
   // ----- camera ----------------------------------------------------------------------------------
   function makeView(focus, x0, w, h) {

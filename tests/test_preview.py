@@ -195,7 +195,10 @@ def test_ten_thousand_frames_of_sixty_joints_stay_under_15_mb(tmp_path):
     j, f = 60, 10_000
     parents = np.array([-1] + [int(rng.integers(max(0, i - 4), i)) for i in range(1, j)])
     offsets = rng.normal(0, 0.1, (j, 3))
-    skel = Skeleton(tuple(f"j{i:02d}" for i in range(j)), parents, offsets)
+    tips = np.full((j, 3), np.nan)
+    leaves = sorted(set(range(j)) - set(parents))
+    tips[leaves] = rng.normal(0, 0.1, (len(leaves), 3))  # every leaf has an end site, as in BVH files
+    skel = Skeleton(tuple(f"j{i:02d}" for i in range(j)), parents, offsets, tips=tips)
     t = np.arange(f) / 60.0
     axes = rng.normal(size=(j, 3))
     axes /= np.linalg.norm(axes, axis=1, keepdims=True)
@@ -210,8 +213,8 @@ def test_ten_thousand_frames_of_sixty_joints_stay_under_15_mb(tmp_path):
     assert size < 15_000_000, f"{size / 1e6:.1f} MB"
     s = embedded(out.read_text())["sides"][1]
     _, gpos = motion.global_transforms()
-    assert s["decoded"].shape == (f, j, 3)
-    assert np.abs(s["decoded"] - gpos).max() <= 0.5 * s["step"] + 1e-9
+    assert s["decoded"].shape == (f, j + len(leaves), 3)
+    assert np.abs(s["decoded"][:, :j] - gpos).max() <= 0.5 * s["step"] + 1e-9
 
 
 def test_ground_is_estimated_when_the_clip_floats_far_from_zero():
@@ -226,6 +229,34 @@ def test_ground_is_estimated_when_the_clip_floats_far_from_zero():
     tips = gpos[:, has] + quat.rotate(grot[:, has], sk.tips[has][None])
     lowest = np.concatenate([gpos, tips], axis=1)[..., 1].min(axis=1)
     assert high.ground == pytest.approx(np.percentile(lowest, 5) * 0.01, abs=1e-9)
+
+
+def test_bad_input_names_the_place_and_leaves_no_file(tmp_path):
+    from retarget.errors import RetargetError
+
+    m = humanoid(10)
+    rot = np.array(m.rotations)
+    rot[4, m.skeleton.index("left_shin")] = np.nan
+    with pytest.raises(RetargetError, match="frame 4, joint 'left_shin'"):
+        build_preview(m.replace(rotations=rot), m)
+    with pytest.raises(RetargetError, match="output folder does not exist"):
+        write_preview(tmp_path / "nowhere" / "page.html", m, m)
+    assert not (tmp_path / "nowhere").exists()
+
+
+def test_contact_and_pair_adapters():
+    from types import SimpleNamespace
+
+    from retarget.preview import contact_flags, mapping_pairs
+
+    flags = np.array([[True, False], [False, True], [True, True]])
+    got = contact_flags(SimpleNamespace(flags=flags, feet=("left", "right")))
+    assert list(got) == ["left", "right"] and np.array_equal(got["right"], [False, True, True])
+    with pytest.raises(OptionError):
+        contact_flags(SimpleNamespace(flags=flags, feet=("left",)))
+    pairs = [SimpleNamespace(source="hip", target="pelvis"), {"source": "lFoot", "target": "foot_l"}]
+    assert mapping_pairs(SimpleNamespace(pairs=pairs)) == [("hip", "pelvis"), ("lFoot", "foot_l")]
+    assert mapping_pairs(None) is None
 
 
 # ----- measures --------------------------------------------------------------------------------------
@@ -316,3 +347,36 @@ def test_browser_draws_two_moving_skeletons(tmp_path):
             assert near > 40, f"{name}: only {near} pixels of the {what} colour"
         changed = (np.abs(pa - pb).max(axis=-1) > 0.1).sum()
         assert changed > 300, f"{name}: only {changed} pixels change between frames 0 and 20"
+
+
+# ----- command line ----------------------------------------------------------------------------------
+
+def test_preview_command_lists_its_options():
+    from click.testing import CliRunner
+
+    from retarget.cli import main
+
+    r = CliRunner().invoke(main, ["preview", "--help"])
+    assert r.exit_code == 0, r.output
+    for opt in ("--rig", "--mapping", "--output", "--plots"):
+        assert opt in r.output
+
+
+def test_preview_command_end_to_end(real_clips, tmp_path):
+    pytest.importorskip("retarget.pipeline", reason="retarget.pipeline (transfer) is not in this checkout yet")
+    from click.testing import CliRunner
+
+    from retarget.cli import main
+
+    clip = next(p for p in real_clips if p.name == "walk_bn.bvh")
+    rig = next(p for p in real_clips if p.name == "walk_a_cmu43.bvh")  # its zero pose is a T-pose
+    out = tmp_path / "walk.html"
+    r = CliRunner().invoke(main, ["preview", str(clip), "--rig", str(rig), "-o", str(out),
+                                  "--plots", str(tmp_path / "plots")])
+    assert r.exit_code == 0, r.output
+    data = embedded(out.read_text())
+    assert data["sides"][0]["frames"] == data["sides"][1]["frames"] == 273
+    assert len(data["sides"][1]["joints"]) == 43
+    assert (tmp_path / "plots" / "walk_bn_feet.png").stat().st_size > 15_000
+    bad = CliRunner().invoke(main, ["preview", str(tmp_path / "missing.bvh"), "--rig", str(rig), "-o", str(out)])
+    assert bad.exit_code == 2 and "Traceback" not in bad.output
