@@ -77,6 +77,7 @@ _SCALE_TOL = 1e-5
 _BIND_POS_TOL = 1e-4
 _BIND_AXIS_TOL = 1e-3
 _DEFAULT_FPS = 30.0
+_FPS_KEY = "frames_per_second"  # in an animation's extras: the clip's frame rate, as written here
 
 
 class GLTFWarning(UserWarning):
@@ -182,6 +183,19 @@ class _Document:
             raise GLTFError(f"asset version {version or '(missing)'!r}, expected 2.x", path=self.label)
         self.g = g
         self._buffers: dict[int, bytes] = {}
+
+    def raw_json(self) -> dict:
+        """The document's JSON exactly as stored (pygltflib's own output adds default values)."""
+        data = self.path.read_bytes()
+        if self.path.suffix.lower() == ".glb":
+            length, kind = struct.unpack_from("<II", data, 12)
+            if kind != _GLB_JSON:
+                raise self.error("the first GLB chunk is not JSON")
+            data = data[20:20 + length]
+        try:
+            return json.loads(data)
+        except ValueError as exc:
+            raise self.error(f"cannot parse the glTF document: {exc}") from None
 
     def error(self, message: str) -> GLTFError:
         return GLTFError(message, path=self.label)
@@ -351,6 +365,13 @@ def _build_rig(doc: _Document, skin: int | None = None, rest: str = "nodes") -> 
                 raise doc.error(f"node {c} has more than one parent (nodes {parent[c]} and {i}); the node "
                                 "hierarchy must be a set of trees (specification 3.5.2)")
             parent[c] = i
+    reached = [i for i in range(count) if parent[i] < 0]
+    for i in reached:  # grows while it is walked: every node below a root
+        reached.extend(nodes[i].children or [])
+    if len(reached) < count:
+        stuck = min(set(range(count)) - set(reached))
+        raise doc.error(f"the node hierarchy has a cycle through node {stuck} (specification 3.5.2: the "
+                        "hierarchy must be a set of trees)")
 
     def up_chain(i: int) -> list[int]:
         out = [i]
@@ -500,7 +521,7 @@ def _check_bind(doc: _Document, skin_ids: list[int], world: list[_Xf], index: di
                 size: float) -> None:
     """Warn when inverse bind matrices disagree with the node rest pose (they should invert each joint's
     global transform when the node pose is the bind pose)."""
-    bad: list[tuple[float, str]] = []
+    bad: list[tuple[int, str]] = []
     total = 0
     deltas = []
     for k in skin_ids:
@@ -514,18 +535,18 @@ def _check_bind(doc: _Document, skin_ids: list[int], world: list[_Xf], index: di
             pos = float(np.abs(d[:3, 3]).max()) / size
             axis = float(np.abs(d[:3, :3] - np.eye(3)).max())
             if pos > _BIND_POS_TOL or axis > _BIND_AXIS_TOL:
-                bad.append((max(pos / _BIND_POS_TOL, axis / _BIND_AXIS_TOL),
-                            f"{_display(doc.g.nodes[n], n)}: position off by {pos * size:.4g} units, "
-                            f"axes by {axis:.3g}"))
+                bad.append((index[n], f"{_display(doc.g.nodes[n], n)} (position off by {pos * size:.4g} "
+                                      f"units, axes by {axis:.3g})"))
     if not bad:
         return
-    bad.sort(key=lambda b: -b[0])
+    bad = sorted(set(bad))  # hierarchy order: the first one listed is where the difference starts
+    listed = ", ".join(b[1] for b in bad[:4]) + (f" and {len(bad) - 4} more" if len(bad) > 4 else "")
     common = all(np.abs(d - deltas[0]).max() < 1e-4 * max(1.0, np.abs(deltas[0]).max()) for d in deltas)
     how = (" (they agree with it up to one common transform, so the mesh was bound in another space)"
            if common else "")
     warnings.warn(GLTFWarning(
         f"{doc.label}: inverse bind matrices disagree with the node rest pose at {len(bad)} of {total} "
-        f"joints{how}; worst {bad[0][1]}. The node rest pose (node TRS) is used as the rest pose; "
+        f"joints{how}: {listed}. The node rest pose (node TRS) is used as the rest pose; "
         "read with rest='bind' to use the bind pose instead."), stacklevel=4)
 
 
@@ -580,6 +601,10 @@ def _sample(times: np.ndarray, values: np.ndarray, interp: str, t: np.ndarray, r
     if n == 1:
         out = np.broadcast_to(v[0], (len(t), v.shape[1])).copy()
         return quat.normalize(out) if rotation else out
+    # A requested time that is a key time up to float32 storage takes the key's value as-is (Appendix C).
+    near = np.clip(np.searchsorted(times, t), 1, n - 1)
+    near = np.where(np.abs(times[near - 1] - t) < np.abs(times[near] - t), near - 1, near)
+    t = np.where(np.abs(times[near] - t) <= 2 * np.finfo(np.float32).eps * np.abs(t), times[near], t)
     k = np.clip(np.searchsorted(times, t, side="right") - 1, 0, n - 2)
     td = times[k + 1] - times[k]
     u = np.clip((t - times[k]) / td, 0.0, 1.0)
@@ -594,15 +619,21 @@ def _sample(times: np.ndarray, values: np.ndarray, interp: str, t: np.ndarray, r
     return quat.normalize(out) if rotation else out
 
 
-def _frame_rate(inputs: list[np.ndarray]) -> float:
-    longest = max(inputs, key=len)
+def _frame_rate(inputs: list[np.ndarray], stated) -> float:
+    """The keys' own rate when they are evenly spaced (the rate we state in the animation's extras when
+    it agrees, else the nearest whole number when within 1e-4), the stated rate when the keys cannot
+    tell (one key), else 30."""
+    stated = float(stated) if isinstance(stated, (int, float)) and np.isfinite(stated) and stated > 0 else None
+    longest = max(inputs, key=len, default=np.zeros(1))
     if len(longest) < 2:
-        return _DEFAULT_FPS
+        return stated or _DEFAULT_FPS
     steps = np.diff(longest)
     mean = (longest[-1] - longest[0]) / (len(longest) - 1)
     if np.abs(steps - mean).max() > 1e-3 * mean + 1e-5:
         return _DEFAULT_FPS
     fps = 1.0 / mean
+    if stated is not None and abs(stated - fps) < 1e-4 * fps:
+        return stated
     return float(round(fps)) if abs(fps - round(fps)) < 1e-4 * fps else float(fps)
 
 
@@ -642,7 +673,7 @@ def _read_animation(doc: _Document, rig: _Rig, ai: int, fps: float | None) -> Mo
     sk = rig.skeleton
     j = sk.num_joints
     if fps is None:
-        fps = _frame_rate([c[0] for c in chans.values()]) if chans else _DEFAULT_FPS
+        fps = _frame_rate([c[0] for c in chans.values()], _field(anim.extras, _FPS_KEY))
     if not (np.isfinite(fps) and fps > 0):
         raise doc.error(f"frame rate must be a positive number, got {fps}")
     end = max((c[0][-1] for c in chans.values()), default=0.0)
@@ -841,6 +872,10 @@ def _rig_document(sk: Skeleton, mesh: bool) -> tuple[dict, _Blob, _Targets]:
         if sk.children[j]:
             node["children"] = [int(c) for c in sk.children[j]]
         nodes.append(node)
+    for j in range(len(sk)):  # end sites as plain (non-joint) child nodes of their leaf joints
+        if not np.isnan(sk.tips[j]).any():
+            nodes[j].setdefault("children", []).append(len(nodes))
+            nodes.append({"name": f"{sk.names[j]}_end", "translation": [float(v) for v in sk.tips[j]]})
     rot, pos = sk.rest_global
     m = np.zeros((len(sk), 4, 4))
     rt = np.swapaxes(quat.to_matrix(rot), -1, -2)
@@ -890,7 +925,7 @@ def _template_document(template: str | os.PathLike) -> tuple[dict, _Blob, _Targe
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", GLTFWarning)
         rig = _build_rig(src)
-    doc = json.loads(src.g.to_json())
+    doc = src.raw_json()
     data = bytearray()
     starts = []
     for i, b in enumerate(doc.get("buffers", [])):
@@ -960,7 +995,8 @@ def _add_animation(blob: _Blob, name: str, motion: Motion, tg: _Targets, where: 
         channel(quat.make_continuous(quat.normalize(q), axis=0), "VEC4", tg.nodes[k], "rotation")
         if k == 0 or np.abs(t - tg.node_t[k]).max() > 1e-6 * tg.size:
             channel(t, "VEC3", tg.nodes[k], "translation")
-    blob.doc.setdefault("animations", []).append({"name": name, "channels": channels, "samplers": samplers})
+    blob.doc.setdefault("animations", []).append({"name": name, "channels": channels, "samplers": samplers,
+                                                  "extras": {_FPS_KEY: motion.fps}})
 
 
 def _encode(path: Path, doc: dict, blob: _Blob) -> bytes:
