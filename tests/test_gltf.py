@@ -617,3 +617,34 @@ def test_inspect_reads_a_gltf_rig(rig_file):
     r = CliRunner().invoke(main, ["inspect", str(rig_file)])
     assert r.exit_code == 0, r.output
     assert "hips" in r.output and "knee_l" in r.output
+
+
+# ----- the demo characters as glTF ------------------------------------------------------------------------
+
+DEMO_RIGS = HERE.parent / "demo_clips" / "rigs"
+DEMO_SPACES = {"brannoc_stocky": Convention("+Y", "+Z", 1.0, "m"),
+               "quillon_lanky": Convention("+Y", "-X", 0.01, "cm")}  # as demo_clips/README.md states
+
+
+@pytest.mark.parametrize("name", sorted(DEMO_SPACES))
+def test_demo_characters_as_gltf(name):
+    """Each demo character's .glb (written by demo_clips/generate.py) passes the validator, reads without
+    warnings, and holds the BVH rig's joints at the same rest positions turned into glTF's space (section
+    3.4: +Y up, faces +Z, metres), with bone-aligned axes and a skinned mesh."""
+    glb, bvh = DEMO_RIGS / f"{name}.glb", DEMO_RIGS / f"{name}.bvh"
+    if not glb.is_file():
+        pytest.skip(f"{glb} has not been generated")
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        g = read_gltf(glb)
+    b = read_bvh(bvh)
+    conv = DEMO_SPACES[name]
+    assert g.skeleton.names == b.skeleton.names
+    want = b.skeleton.rest_global[1] @ conv.file_to_canonical().T * conv.metres_per_unit
+    # BVH text keeps 6 decimals per offset (5e-7 file units each, summed over about 10 joints of a
+    # chain): 1e-5 m covers a rig in metres.
+    np.testing.assert_allclose(g.skeleton.rest_global[1], want, atol=1e-5)
+    doc, _ = load_raw(glb)
+    assert doc["meshes"][0]["primitives"][0]["attributes"].keys() >= {"POSITION", "JOINTS_0", "WEIGHTS_0"}
+    assert quat.angle_between(g.skeleton.rest_rotations[1:], quat.identity((len(g.skeleton) - 1,))).max() > 1
+    assert_valid(glb)
