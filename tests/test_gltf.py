@@ -648,3 +648,57 @@ def test_demo_characters_as_gltf(name):
     assert doc["meshes"][0]["primitives"][0]["attributes"].keys() >= {"POSITION", "JOINTS_0", "WEIGHTS_0"}
     assert quat.angle_between(g.skeleton.rest_rotations[1:], quat.identity((len(g.skeleton) - 1,))).max() > 1
     assert_valid(glb)
+
+
+def test_hand_written_file_with_less_common_encodings(tmp_path):
+    """A file written by hand here with what our writer never produces: a root node given as a column-major
+    `matrix` (section 3.5.3), a STEP rotation channel stored as normalised signed shorts (section 3.11:
+    f = max(c / 32767, -1)), a CUBICSPLINE translation channel whose output is a sparse accessor with no
+    bufferView (section 3.6.2.3: zeros, then the listed elements replaced), sampled at 4 fps."""
+    q_keys = Rotation.from_rotvec([[0, 0, 0], [0.9, 0, 0], [0, 0, -1.3]]).as_quat()
+    shorts = np.round(q_keys * 32767).astype("<i2")
+    v_keys = np.array([[0, 1, 0], [0.2, 1.4, 0], [0, 1.0, 0.6]], dtype="<f4")
+    times = np.array([0, 0.5, 1.0], dtype="<f4")
+    sparse_idx = np.array([1, 4, 7], dtype="<u1")  # the values of (in-tangent, value, out-tangent) triples
+    parts = [times.tobytes(), shorts.tobytes(), sparse_idx.tobytes() + b"\0", v_keys.tobytes()]
+    offsets = np.cumsum([0] + [len(p) for p in parts])
+    blob = b"".join(parts)
+    root_turn = Rotation.from_euler("y", 90, degrees=True)
+    m = np.eye(4)
+    m[:3, :3], m[:3, 3] = root_turn.as_matrix(), [1, 2, 3]
+    doc = {
+        "asset": {"version": "2.0"},
+        "scene": 0, "scenes": [{"nodes": [0]}],
+        "nodes": [{"name": "base", "matrix": list(m.T.reshape(16)), "children": [1]},
+                  {"name": "arm", "translation": [0, 1, 0]}],
+        "skins": [{"joints": [0, 1]}],
+        "buffers": [{"byteLength": len(blob),
+                     "uri": "data:application/octet-stream;base64," + base64.b64encode(blob).decode()}],
+        "bufferViews": [{"buffer": 0, "byteOffset": int(o), "byteLength": len(p)} for o, p in zip(offsets, parts)],
+        "accessors": [
+            {"bufferView": 0, "componentType": 5126, "count": 3, "type": "SCALAR", "min": [0], "max": [1]},
+            {"bufferView": 1, "componentType": 5122, "normalized": True, "count": 3, "type": "VEC4"},
+            {"componentType": 5126, "count": 9, "type": "VEC3",
+             "sparse": {"count": 3, "indices": {"bufferView": 2, "componentType": 5121},
+                        "values": {"bufferView": 3}}}],
+        "animations": [{"channels": [{"sampler": 0, "target": {"node": 1, "path": "rotation"}},
+                                     {"sampler": 1, "target": {"node": 1, "path": "translation"}}],
+                        "samplers": [{"input": 0, "output": 1, "interpolation": "STEP"},
+                                     {"input": 0, "output": 2, "interpolation": "CUBICSPLINE"}]}],
+    }
+    path = tmp_path / "hand.gltf"
+    path.write_text(json.dumps(doc))
+    got = read_gltf(path, fps=4.0)
+    assert got.num_frames == 5 and got.skeleton.names == ("base", "arm")
+    assert quat.angle_between(got.rotations[:, 0], root_turn.as_quat()).max() < 1e-12
+    step = q_keys[[0, 0, 1, 1, 2]]  # t = 0, 0.25, 0.5, 0.75, 1.0 hold the previous key
+    assert quat.angle_between(got.rotations[:, 1], step).max() < 1e-4  # 1/32767 quantisation
+    # Zero tangents: the Hermite basis gives the mean of the two keys half-way between them.
+    want_t = np.array([v_keys[0], (v_keys[0] + v_keys[1]) / 2, v_keys[1], (v_keys[1] + v_keys[2]) / 2, v_keys[2]])
+    np.testing.assert_allclose(got.translations[:, 1], want_t, atol=1e-6)
+    pos = got.global_transforms()[1]
+    np.testing.assert_allclose(pos[:, 1], [1, 2, 3] + root_turn.apply(want_t), atol=1e-6)
+    # Without a skin, the node tree is read as the skeleton (a skeleton-only file from elsewhere).
+    del doc["skins"]
+    path.write_text(json.dumps(doc))
+    assert read_gltf(path, fps=4.0).skeleton.names == ("base", "arm")
