@@ -2,8 +2,9 @@
 
 Outside references:
 - The glTF 2.0 specification (Khronos, version 2.0.1), cited by section beside each check: 3.4 Coordinate
-  System and Units, 3.5.3 Transformations, 3.6.2 Accessors, 3.7.3 Skins, 3.11 Animations, Appendix C
-  (interpolation), 4 GLB File Format.
+  System and Units, 3.5.3 Transformations, 3.6.2 Accessors, 3.7.3 Skins, 3.7.4 Instantiation, 3.11
+  Animations, Appendix C (interpolation), 4 GLB File Format. The titles and rules were read in the
+  specification's source; the section numbers are recalled from the published edition.
 - The Khronos glTF validator (npm package gltf-validator) on every kind of file we write; those tests
   skip, saying why, when Node.js or the package is absent.
 - scipy.spatial.transform (Rotation, Slerp) and scipy.interpolate.CubicHermiteSpline for quaternion
@@ -591,7 +592,8 @@ def test_bad_glb_and_missing_animation(tmp_path, rig_file):
 
 def test_box_mesh_is_closed_and_faces_outwards(rig_and_clip):
     """Each box is closed (every edge shared by exactly two triangles) and its triangles wind
-    counter-clockwise seen from outside (section 3.7.2.1 front faces), i.e. along the stored normal."""
+    counter-clockwise seen from outside (section 3.7.4: with a positive determinant, front faces wind
+    counter-clockwise), i.e. along the stored normal."""
     sk, _, _ = rig_and_clip
     body = box_mesh(sk)
     tri = body.indices.reshape(-1, 3)

@@ -1,7 +1,8 @@
 """glTF 2.0 rigs and animations: read a skinned character's skeleton, write clips as glTF animations.
 
-Facts of the format this module relies on (glTF 2.0 specification, Khronos, version 2.0.1; section
-numbers as published, anchors in brackets):
+Facts of the format this module relies on (glTF 2.0 specification, Khronos, version 2.0.1; the anchors
+in brackets are the specification source's own, the section numbers are recalled from the published
+edition):
 
 - 3.4 Coordinate System and Units [#coordinate-system-and-units]: +Y up, +Z forward (the front of an
   asset faces +Z), linear distances in metres, angles in radians.
