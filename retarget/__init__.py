@@ -9,7 +9,7 @@ from . import quat
 from .chains import BodyLayout, Chain, Limb, analyze_body
 from .convention import Convention, detect_convention
 from .errors import (BVHError, GLTFError, MappingError, OptionError, RetargetError, SkeletonError)
-from .io import read_bvh, read_motion, write_bvh, write_motion
+from .io import read_bvh, read_gltf, read_motion, write_bvh, write_gltf, write_motion
 from .motion import Motion, forward_kinematics
 from .skeleton import Skeleton
 
@@ -22,6 +22,8 @@ __all__ = [
     "write_bvh",
     "read_motion",
     "write_motion",
+    "read_gltf",
+    "write_gltf",
     "Convention",
     "detect_convention",
     "BodyLayout",
