@@ -594,6 +594,10 @@ def detect_contacts(motion, legs: dict, convention, settings: ContactSettings | 
     return _with_support(ft.names, flags, sole, fps, leg)
 
 
+# A contact's support is this low percentile of the sole's height over the contact: the ground is under
+# the foot, and noise goes both ways (common practice).
+_SUPPORT_PERCENTILE = 10.0
+
 GRAVITY = 9.80665  # m/s^2, standard gravity
 
 
@@ -615,7 +619,7 @@ def _with_support(feet, flags: np.ndarray, sole: np.ndarray, fps: float, leg: np
     support = np.full(flags.shape, np.nan)
     for i in range(flags.shape[1]):
         for s, e in zip(*contact_runs(flags[:, i])):
-            support[s:e, i] = np.median(sole[s:e, i])
+            support[s:e, i] = np.percentile(sole[s:e, i], _SUPPORT_PERCENTILE)
     ground = float(np.nanmin(support)) if flags.any() else float("nan")
     return FootContacts(tuple(feet), flags, support, fps, leg, ground)
 
@@ -624,7 +628,7 @@ def contacts_from_flags(motion, legs: dict, convention, flags: np.ndarray,
                         feet: tuple[str, ...] = ("left", "right"),
                         settings: ContactSettings | dict | None = None) -> FootContacts:
     """FootContacts from given flags ((F, K) bool, e.g. hand-made or ground truth) with each contact's
-    support measured on the clip (median sole height over the contact)."""
+    support measured on the clip (a low percentile of the sole height over the contact)."""
     st = _settings(settings)
     flags = np.asarray(flags, dtype=bool)
     if flags.shape != (motion.num_frames, len(feet)):
@@ -666,7 +670,7 @@ def _carry(contacts: FootContacts, ft: _Feet, sole: np.ndarray, st: ContactSetti
             rel = float(np.nanmedian(src)) - ground_src if np.isfinite(src).any() else 0.0
             runs.append((i, s, e, rel))
             rel_list.append(rel * ratio)
-            meas_list.append(float(np.median(sole[_middle(s, e), i])))
+            meas_list.append(float(np.percentile(sole[s:e, i], _SUPPORT_PERCENTILE)))
             weight.append(e - s)
     if st.ground is not None:
         ground = float(st.ground)
@@ -689,8 +693,8 @@ def carry_contacts(contacts: FootContacts, motion, legs: dict, convention,
 
     Each contact's support becomes the target's ground plus the source support's height above the
     source's ground, scaled by the ratio of leg lengths. The target's ground is settings.ground when
-    set, else the offset that best lays these levels over where the target's soles are at the middle of
-    each contact (a frame-weighted median).
+    set, else the offset that best lays these levels over where the target's soles stand in each
+    contact (a frame-weighted median).
     """
     st = _settings(settings)
     _check_frames(contacts, motion)
@@ -890,10 +894,12 @@ def _foot_moves(contacts: FootContacts, sole: _Sole, step: np.ndarray, blend: in
             slide[1:, [0, 2]] = -np.cumsum(step[s + 1:e, i][:, [0, 2]], axis=0)
             mid = _middle(s, e)
             slide[:, [0, 2]] -= slide[mid.start - s:mid.stop - s, [0, 2]].mean(axis=0)
-            # Vertically the foot keeps its own motion (landing, heel rise), shifted so that its middle
-            # frames sit on the support, and is lifted wherever it would still go under it.
-            lift = contacts.support[s:e, i] - np.median(sole.height[mid, i])
-            slide[:, 1] = lift + np.maximum(0.0, contacts.support[s:e, i] - (sole.height[s:e, i] + lift))
+            # Vertically the foot keeps its own motion (landing, heel rise), shifted so that it stands on
+            # the support as the source did (its low percentile there), and is lifted, smoothly,
+            # wherever it would still go under it.
+            ground = contacts.support[s:e, i]
+            shift = ground - np.percentile(sole.height[s:e, i], _SUPPORT_PERCENTILE)
+            slide[:, 1] = shift + _envelope(np.maximum(0.0, ground - (sole.height[s:e, i] + shift)), 1)
             move[s:e, i] = slide
             weight[s:e, i] = 1.0
             level[s:e, i] = contacts.support[s:e, i]
@@ -931,17 +937,22 @@ def _foot_moves(contacts: FootContacts, sole: _Sole, step: np.ndarray, blend: in
     return eased, weight
 
 
-def _root_drop(need: np.ndarray, active: np.ndarray, radius: int) -> np.ndarray:
-    """(F,) smooth root lowering >= need: a running maximum then a running mean over ``radius``
-    frames, kept to the active frames."""
+def _envelope(need: np.ndarray, radius: int) -> np.ndarray:
+    """A smooth curve at or above ``need`` ((n,) >= 0): running maximum, then running mean, both over
+    2 * radius + 1 samples."""
     from scipy.ndimage import maximum_filter1d, uniform_filter1d
 
     if not np.any(need > 0):
         return np.zeros_like(need)
     size = 2 * radius + 1
-    peak = maximum_filter1d(need, size=size, mode="nearest")
-    smooth = uniform_filter1d(peak, size=size, mode="nearest")
-    return np.where(active, np.maximum(smooth, need), 0.0)
+    return np.maximum(uniform_filter1d(maximum_filter1d(need, size=size, mode="nearest"), size=size,
+                                       mode="nearest"), need)
+
+
+def _root_drop(need: np.ndarray, active: np.ndarray, radius: int) -> np.ndarray:
+    """(F,) smooth root lowering >= need: a running maximum then a running mean over ``radius``
+    frames, kept to the active frames."""
+    return np.where(active, _envelope(need, radius), 0.0)
 
 
 def fix_contacts(motion, legs: dict, contacts: FootContacts, convention,
