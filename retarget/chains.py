@@ -367,9 +367,8 @@ def analyze_body(skeleton: Skeleton, motion=None) -> BodyLayout:
         evidence = "geometry"
         forward = geo_fwd
         left = np.cross(up, forward)
-        leg_sides = [LEFT if np.dot(pos[r[1][0]] - centre, left) > 0 else RIGHT for _, r in
-                     [(c, r) for c, r in legs_raw]]
-        arm_sides = [LEFT if np.dot(pos[r[1][0]] - pos[chest], left) > 0 else RIGHT for _, r in arms_raw]
+        leg_sides = [LEFT if np.dot(pos[r[0]] - centre, left) > 0 else RIGHT for _, r in legs_raw]
+        arm_sides = [LEFT if np.dot(pos[r[0]] - pos[chest], left) > 0 else RIGHT for _, r in arms_raw]
         if len(set(leg_sides)) < 2 or len(set(arm_sides)) < 2:
             evidence = "none"
     if evidence == "none":

@@ -56,8 +56,15 @@ def inspect_cmd(file: str, as_json: bool, fps: float | None, up: str | None, for
     from .describe import summarize
     from .io import read_motion
 
+    from .convention import parse_axis
+    from .errors import SkeletonError
+
+    up, forward = (parse_axis(a) if a else None for a in (up, forward))
     motion = read_motion(file, fps=fps)
-    conv = detect_convention(motion.skeleton, motion).with_overrides(up, forward, unit_scale)
+    try:
+        conv = detect_convention(motion.skeleton, motion).with_overrides(up, forward, unit_scale)
+    except SkeletonError:
+        conv = None  # summarize reports why there is no body layout
     summary = summarize(motion, conv)
     if as_json:
         click.echo(json.dumps(summary.model_dump(), indent=2))
@@ -86,6 +93,8 @@ def _format_summary(s) -> str:
         out.append(f"  {'  ' * j.depth}{j.name}  [{chans}]{mark}")
     out.append("")
     out.append("chains")
+    if s.layout_problem:
+        out.append(f"  no body layout: {s.layout_problem}")
     for ch in s.chains:
         side = "" if ch.side == "centre" else f" {ch.side}"
         out.append(f"  {ch.kind + side:<14} {' > '.join(ch.joints)}")

@@ -115,11 +115,12 @@ class Convention:
     def with_overrides(self, up: str | None = None, forward: str | None = None,
                        metres_per_unit: float | None = None) -> "Convention":
         """A copy with user choices; overridden parts get confidence 1."""
-        c = self
+        changes: dict = {}
         if up is not None:
-            c = replace(c, up=parse_axis(up), up_confidence=1.0)
+            changes.update(up=parse_axis(up), up_confidence=1.0)
         if forward is not None:
-            c = replace(c, forward=parse_axis(forward), forward_confidence=1.0, forward_evidence="override")
+            changes.update(forward=parse_axis(forward), forward_confidence=1.0, forward_evidence="override")
+        c = replace(self, **changes)
         if metres_per_unit is not None:
             if not metres_per_unit > 0:
                 raise OptionError(f"metres per unit must be positive, got {metres_per_unit}")

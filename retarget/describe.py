@@ -8,6 +8,7 @@ from pydantic import BaseModel
 from . import quat
 from .chains import BodyLayout, analyze_body
 from .convention import Convention, detect_convention
+from .errors import SkeletonError
 from .motion import Motion
 
 __all__ = ["JointInfo", "ChainInfo", "ConventionInfo", "ClipSummary", "summarize", "rest_pose_kind",
@@ -56,6 +57,7 @@ class ClipSummary(BaseModel):
     joints: list[JointInfo]
     chains: list[ChainInfo]
     static_joints: list[str]
+    layout_problem: str | None = None
 
 
 def static_joints(motion: Motion, tol: float = 1e-9) -> list[int]:
@@ -97,15 +99,28 @@ def rest_pose_kind(body: BodyLayout) -> tuple[str, float | None]:
 def summarize(motion: Motion, convention: Convention | None = None) -> ClipSummary:
     """Summarise a clip or rig file: hierarchy, chains, convention, rest-pose kind, static joints."""
     sk = motion.skeleton
-    body = analyze_body(sk, motion)
-    conv = convention or detect_convention(sk, motion, body)
-    kind, arm = rest_pose_kind(body)
+    try:
+        body = analyze_body(sk, motion)
+    except SkeletonError as exc:
+        body, problem = None, exc.detail
+    else:
+        problem = None
+    if body is not None:
+        conv = convention or detect_convention(sk, motion, body)
+        kind, arm = rest_pose_kind(body)
+        chains = [ChainInfo(kind=c.kind, side=c.side, joints=[sk.names[j] for j in c.joints])
+                  for c in body.chains]
+        reference = body.reference
+    else:
+        pos = sk.rest_global[1]
+        conv = convention or Convention("+Y", "+Z", None, "unknown", 0.0, 0.0, "none",
+                                        float(np.ptp(pos[:, 1])))
+        kind, arm, chains, reference = "other (no body layout)", None, [], "rest"
     still = set(static_joints(motion)) if motion.num_frames > 1 else set()
     joints = [JointInfo(name=sk.names[j], parent=None if sk.parents[j] < 0 else sk.names[sk.parents[j]],
                         depth=int(sk.depths[j]), channels=list(sk.channels[j]),
                         offset=[float(v) for v in sk.offsets[j]], animated=j not in still)
               for j in range(sk.num_joints)]
-    chains = [ChainInfo(kind=c.kind, side=c.side, joints=[sk.names[j] for j in c.joints]) for c in body.chains]
     return ClipSummary(
         file=motion.source, joint_count=sk.num_joints, end_sites=int((~np.isnan(sk.tips).any(axis=1)).sum()),
         frames=motion.num_frames, fps=motion.fps, duration_s=motion.duration, rest_pose=kind,
@@ -114,5 +129,5 @@ def summarize(motion: Motion, convention: Convention | None = None) -> ClipSumma
                                   forward_confidence=round(conv.forward_confidence, 3),
                                   forward_evidence=conv.forward_evidence, units=conv.units,
                                   metres_per_unit=conv.metres_per_unit, height_file_units=conv.height,
-                                  reference_pose=body.reference),
-        joints=joints, chains=chains, static_joints=[sk.names[j] for j in sorted(still)])
+                                  reference_pose=reference),
+        joints=joints, chains=chains, static_joints=[sk.names[j] for j in sorted(still)], layout_problem=problem)

@@ -104,8 +104,8 @@ def to_axis_angle(q: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 def angle_between(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     """Angle in radians of the relative rotation between unit quaternions: (..., 4) -> (...)."""
-    d = np.abs(np.sum(np.asarray(a) * np.asarray(b), axis=-1))
-    return 2.0 * np.arccos(np.clip(d, 0.0, 1.0))
+    r = multiply(conjugate(a), b)
+    return 2.0 * np.arctan2(np.linalg.norm(r[..., :3], axis=-1), np.abs(r[..., 3]))
 
 
 def _check_order(order: str) -> str:
@@ -133,6 +133,23 @@ def from_euler(angles: np.ndarray, order: str, degrees: bool = False) -> np.ndar
     angles = np.asarray(angles, dtype=np.float64)
     if degrees:
         angles = np.deg2rad(angles)
+    if len(order) == 3 and len(set(order)) == 3:
+        # Closed form of q_i(a) q_j(b) q_k(c): with e_i e_j = eps e_k (eps = +1 for cyclic orders),
+        # w = ca cb cc - eps sa sb sc, q_i = sa cb cc + eps ca sb sc, q_j = ca sb cc - eps sa cb sc,
+        # q_k = ca cb sc + eps sa sb cc (half angles).
+        i, j, k = (_AXES[c] for c in order)
+        eps = 1.0 if (j - i) % 3 == 1 else -1.0
+        half = 0.5 * angles
+        c, s = np.cos(half), np.sin(half)
+        ca, cb, cc = c[..., 0], c[..., 1], c[..., 2]
+        sa, sb, sc = s[..., 0], s[..., 1], s[..., 2]
+        cbcc, sbsc, sbcc, cbsc = cb * cc, sb * sc, sb * cc, cb * sc
+        q = np.empty(angles.shape[:-1] + (4,))
+        q[..., 3] = ca * cbcc - eps * sa * sbsc
+        q[..., i] = sa * cbcc + eps * ca * sbsc
+        q[..., j] = ca * sbcc - eps * sa * cbsc
+        q[..., k] = ca * cbsc + eps * sa * sbcc
+        return q
     q = _axis_quaternions(angles[..., 0], _AXES[order[0]])
     for i in range(1, len(order)):
         q = multiply(q, _axis_quaternions(angles[..., i], _AXES[order[i]]))

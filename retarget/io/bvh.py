@@ -221,29 +221,39 @@ def read_bvh(path: str | os.PathLike, fps: float | None = None) -> Motion:
         raise BVHError(f"cannot read: {exc.strerror}", path=path) from None
     if b"\x00" in data[:4096]:
         raise BVHError("not a BVH file: binary content", path=path)
-    text = data.decode("utf-8", errors="replace")
-    return parse_bvh(text, path=path, fps=fps)
+    # Only the text up to the motion header needs decoding; numpy reads the numbers from the file.
+    k = data.find(b"Frame Time")
+    nl = data.find(b"\n", k) if k >= 0 else -1
+    if nl >= 0 and re.search(rb"\S", data[nl + 1: nl + 4096]) is not None:
+        return parse_bvh(data[: nl + 1].decode("utf-8", errors="replace"), path=path, fps=fps,
+                         _from_file=True, _full=lambda: data.decode("utf-8", errors="replace"))
+    return parse_bvh(data.decode("utf-8", errors="replace"), path=path, fps=fps)
 
 
-def parse_bvh(text: str, path: str = "<string>", fps: float | None = None) -> Motion:
-    """Parse BVH text (see read_bvh)."""
+def parse_bvh(text: str, path: str = "<string>", fps: float | None = None, _from_file: bool = False,
+              _full=None) -> Motion:
+    """Parse BVH text (see read_bvh).
+
+    With _from_file, ``text`` may stop after the 'Frame Time' line: numpy reads the frame lines from
+    ``path`` itself (faster than from a string buffer) and ``_full()`` gives the whole text when an error
+    needs diagnosing."""
     # Split off the motion data without splitting every frame line in Python.
     m = re.search(r"^[ \t]*MOTION[ \t]*\r?$", text, flags=re.MULTILINE | re.IGNORECASE)
     head_text = text if m is None else text[: m.end()]
     lines = head_text.splitlines()
     h, motion_idx = _parse_hierarchy(lines, path)
-    rest = text[m.end():] if m is not None else ""
     # The 'Frames:' and 'Frame Time:' lines follow MOTION; find them without splitting the frame lines.
     header: list[tuple[str, int]] = []
-    pos = rest.find("\n") + 1 if "\n" in rest else len(rest)
+    end = len(text)
+    pos = end if m is None else text.find("\n", m.end()) + 1 or end
     lineno = motion_idx + 2
     while len(header) < 2:
-        if pos >= len(rest):
+        if pos >= end:
             raise BVHError("motion block truncated: expected 'Frames:' and 'Frame Time:' lines", path=path,
                            line=lineno)
-        nl = rest.find("\n", pos)
-        nl = len(rest) if nl < 0 else nl
-        line = rest[pos:nl]
+        nl = text.find("\n", pos)
+        nl = end if nl < 0 else nl
+        line = text[pos:nl]
         if line.strip():
             header.append((line, lineno))
         pos = nl + 1
@@ -264,24 +274,30 @@ def parse_bvh(text: str, path: str = "<string>", fps: float | None = None) -> Mo
             raise BVHError(f"Frame Time must be positive, found {ft_str!r} (pass fps to override)", path=path,
                            line=header[1][1])
         fps = 1.0 / frame_time
-    body = rest[pos:] if pos <= len(rest) else ""
+        # Frame Time is usually printed with 6-8 digits (0.0333333): snap to a whole rate when within
+        # that rounding, so 30 fps reads as 30, not 30.00003.
+        if abs(fps - round(fps)) < 1e-5 * fps:
+            fps = float(round(fps))
+    body = path if _from_file else io.StringIO(text[pos:])
+    has_data = _from_file or re.compile(r"\S").search(text, pos) is not None
 
     counts = [len(c) for c in h.channels]
     ncols = int(sum(counts))
     if ncols == 0:
         values = np.zeros((declared, 0))
         rows = declared
-    elif not body.strip():
+    elif not has_data:
         values = np.zeros((0, ncols))
         rows = 0
     else:
         try:
-            values = np.loadtxt(io.StringIO(body), dtype=np.float64, ndmin=2, comments=None)
+            values = np.loadtxt(body, dtype=np.float64, ndmin=2, comments=None,
+                                skiprows=body_start_line - 1 if _from_file else 0)
         except ValueError:
-            _diagnose_rows(body, body_start_line, ncols, path)
+            _diagnose_rows(_body_text(text, _full, pos), body_start_line, ncols, path)
             raise BVHError("motion block could not be parsed", path=path, line=body_start_line) from None
         if values.shape[1] != ncols:
-            _diagnose_rows(body, body_start_line, ncols, path)
+            _diagnose_rows(_body_text(text, _full, pos), body_start_line, ncols, path)
             raise BVHError(f"frames have {values.shape[1]} values, expected {ncols}", path=path,
                            line=body_start_line)
         rows = values.shape[0]
@@ -299,6 +315,10 @@ def parse_bvh(text: str, path: str = "<string>", fps: float | None = None) -> Mo
     return _to_motion(h, values, float(fps), path)
 
 
+def _body_text(text: str, full, pos: int) -> str:
+    return (full() if full is not None else text)[pos:]
+
+
 def _to_motion(h: _Hierarchy, values: np.ndarray, fps: float, path: str) -> Motion:
     n = len(h.names)
     tips = np.array([t if t is not None else [np.nan] * 3 for t in h.tips], dtype=np.float64)
@@ -312,20 +332,25 @@ def _to_motion(h: _Hierarchy, values: np.ndarray, fps: float, path: str) -> Moti
     if animated_positions:
         translations = np.broadcast_to(offsets, (f, n, 3)).copy()
     root_positions = np.broadcast_to(offsets[0], (f, 3)).copy()
-    col = 0
+    # Column of each channel, then one Euler conversion per distinct rotation order (all its joints at
+    # once), and position channels copied in place.
+    starts = np.concatenate([[0], np.cumsum([len(c) for c in h.channels])]).astype(int)
+    groups: dict[str, tuple[list[int], list[list[int]]]] = {}
     for j, chans in enumerate(h.channels):
-        block = values[:, col: col + len(chans)]
-        col += len(chans)
-        rot_cols = [k for k, c in enumerate(chans) if c in ROTATION_CHANNELS]
+        rot_cols = [starts[j] + k for k, c in enumerate(chans) if c in ROTATION_CHANNELS]
         if rot_cols:
-            order = "".join(chans[k][0] for k in rot_cols)
-            rotations[:, j] = quat.from_euler(block[:, rot_cols], order, degrees=True)
+            order = "".join(c[0] for c in chans if c in ROTATION_CHANNELS)
+            joints, cols = groups.setdefault(order, ([], []))
+            joints.append(j)
+            cols.append(rot_cols)
         else:
             rotations[:, j] = (0.0, 0.0, 0.0, 1.0)
         target = root_positions if j == 0 else (translations[:, j] if translations is not None else None)
         for k, c in enumerate(chans):
             if c in POSITION_CHANNELS and target is not None:
-                target[:, "XYZ".index(c[0])] = block[:, k]
+                target[:, "XYZ".index(c[0])] = values[:, starts[j] + k]
+    for order, (joints, cols) in groups.items():
+        rotations[:, joints] = quat.from_euler(values[:, np.array(cols)], order, degrees=True)
     if translations is not None:
         translations[:, 0] = root_positions
     return Motion(skeleton, rotations, root_positions, fps, translations, source=path)
@@ -399,7 +424,7 @@ def format_bvh(motion: Motion) -> str:
     lines = _hierarchy_text(sk)
     lines.append("MOTION")
     lines.append(f"Frames: {motion.num_frames}")
-    lines.append(f"Frame Time: {1.0 / motion.fps:.8f}")
+    lines.append(f"Frame Time: {1.0 / motion.fps:.10g}")
     head = "\n".join(lines) + "\n"
     if values.size == 0:
         return head + "\n" * motion.num_frames
