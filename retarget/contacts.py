@@ -11,12 +11,13 @@ then min(ankle height - flat offset, toe height): the heel while the toes are up
 heel is up. The pivot of a foot on a frame is whichever of the two is lower; a planted foot keeps its
 pivot still, it may roll from heel to toe.
 
-Detection (detect_contacts): a foot is in contact while it is slow (the slower of its two points, with
-hysteresis between an enter and an exit threshold) and close to the support it stands on (sole height
-over the support, again with hysteresis). The support is measured per stretch of stillness, not as one
-floor for the clip, so a step onto a box or uneven ground gives each contact its own level. A still foot
-far above the other foot is held in the air, not standing, and is dropped. Short gaps are closed and
-short contacts removed.
+Detection (detect_contacts): a foot is in contact while it is slow (the slower of its two points), its
+sole is not moving up or down, and it is close to the support it stands on, each test with hysteresis
+between an enter and an exit threshold; a contact that passes ends where the foot last met every enter
+threshold. The support is measured per stretch of stillness, not as one floor for the clip, so a step
+onto a box or uneven ground gives each contact its own level. A still foot far above the other foot is
+held in the air, and a foot bending down with hips that fall like a thrown body is at the top of a jump:
+both are dropped. Short gaps are closed and short contacts removed.
 
 Fixing (fix_contacts): the flags come from the source; the target's support for each contact is the
 source's support carried over (height above the source's ground, scaled by the ratio of leg lengths,
@@ -69,21 +70,26 @@ class ContactSettings(BaseModel):
 
     Where each default comes from:
     - height_enter / height_exit 0.04 L / 0.08 L (about 3.5 / 7 cm on a 0.86 m leg): common practice
-      puts a contact threshold a few centimetres above the support, above capture noise (a few mm) and
-      below the toe clearance of a walking swing once the foot has left (about 1-2 cm at mid-swing is the
-      lowest point, but then the foot is fast). Two thresholds (hysteresis) keep noise from toggling.
-    - speed_enter / speed_exit 0.5 L/s / 0.8 L/s (about 0.43 / 0.69 m/s): common practice; a swinging
-      foot moves at several m/s, while real stance feet on retargeted captures slide at 0.15-0.27 m/s
-      (measured on the real clips in this project's test data), which must still count as contact.
+      puts a contact threshold a few centimetres above the support, above capture noise (a few mm).
+      Two thresholds (hysteresis) keep noise from toggling the state.
+    - speed_enter / speed_exit 0.5 L/s / 0.8 L/s (about 0.43 / 0.69 m/s), on the slower of heel and toe:
+      common practice; a swinging foot moves at several m/s, while real stance feet on retargeted
+      captures slide at 0.15-0.27 m/s (the real clips in this project's test data), which must still count
+      as contact, so this bound is loose.
+    - climb_enter / climb_exit 0.2 L/s / 0.4 L/s, on the sole's vertical speed: our choice, tuned on the
+      demo takes; it separates a low, slow step (a turn on the spot lifts the toes about 5 cm at under
+      0.6 m/s) from a sliding stance, which moves along the ground, not up and down.
     - smoothing 0.1 s: the window of the Savitzky-Golay derivative for speeds (common practice; removes
-      the millimetre jitter of optical capture, which at 120 fps alone reads as 0.5 m/s).
+      the millimetre jitter of optical capture, which in the real clips at 120 fps reads as tenths of m/s
+      when differenced frame to frame).
     - min_duration 0.07 s and max_gap 0.07 s: common practice; a running stance lasts about 0.2 s, the
       shortest real contact, and flicker is shorter than a couple of frames at 30 fps.
     - max_step 0.5 L (about 0.43 m): a still foot higher than this above the other foot is held up, not
       standing. Stair risers are about 0.18 m and step-up boxes 0.2-0.4 m (recalled, common practice).
     - blend 0.1 s: ease-in and ease-out window around each contact (common practice: a few frames).
-    - reach 0.995: share of full leg extension IK may use beyond what the clip already uses, so knees do
-      not snap straight (common practice; 0.995 leaves about 11 degrees of knee bend).
+    - reach 0.985: share of full leg extension IK may use beyond what the clip already uses, so knees do
+      not snap straight (common practice; 0.985 keeps about 20 degrees of knee bend, where a small
+      change of reach no longer swings the knee by many degrees a frame).
     - max_root_drop 0.3 L: the most the root is lowered to let a leg reach (our choice).
     - skate_height 0.025 m: H in the height-weighted skate of Zhang, Starke, Komura and Saito (2018),
       value recalled from memory.
@@ -96,12 +102,14 @@ class ContactSettings(BaseModel):
     height_exit: float = Field(0.08, gt=0, description="leave contact above this sole height over the support, L")
     speed_enter: float = Field(0.5, gt=0, description="enter contact below this foot speed, L per second")
     speed_exit: float = Field(0.8, gt=0, description="leave contact above this foot speed, L per second")
+    climb_enter: float = Field(0.2, gt=0, description="enter contact below this vertical sole speed, L per second")
+    climb_exit: float = Field(0.4, gt=0, description="leave contact above this vertical sole speed, L per second")
     smoothing: float = Field(0.1, ge=0, description="speed smoothing window, seconds")
     min_duration: float = Field(0.07, ge=0, description="shortest contact kept, seconds")
     max_gap: float = Field(0.07, ge=0, description="longest gap closed between two contacts, seconds")
     max_step: float = Field(0.5, gt=0, description="highest support above the other foot, L")
     blend: float = Field(0.1, ge=0, description="ease-in and ease-out window around a contact, seconds")
-    reach: float = Field(0.995, gt=0.5, le=1.0, description="share of full leg extension IK may use")
+    reach: float = Field(0.985, gt=0.5, le=1.0, description="share of full leg extension IK may use")
     max_root_drop: float = Field(0.3, ge=0, description="most the root may be lowered, L")
     skate_height: float = Field(0.025, gt=0, description="H of the height-weighted skate, metres")
     ground: float | None = Field(None, description="target ground height, canonical metres (None: estimate)")
@@ -112,6 +120,8 @@ class ContactSettings(BaseModel):
             raise ValueError(f"height_exit ({self.height_exit}) must not be below height_enter ({self.height_enter})")
         if self.speed_exit < self.speed_enter:
             raise ValueError(f"speed_exit ({self.speed_exit}) must not be below speed_enter ({self.speed_enter})")
+        if self.climb_exit < self.climb_enter:
+            raise ValueError(f"climb_exit ({self.climb_exit}) must not be below climb_enter ({self.climb_enter})")
         return self
 
     def frames(self, seconds: float, fps: float, least: int = 1) -> int:
@@ -417,6 +427,7 @@ class _Feet:
     gpos: np.ndarray = field(repr=False)
     to_canonical: np.ndarray = field(repr=False)
     scale: float = 1.0
+    rest_flat: np.ndarray = field(default=None, repr=False)  # type: ignore[assignment]
 
 
 def _tip(skeleton, j: int) -> np.ndarray | None:
@@ -466,9 +477,10 @@ def _feet(motion, legs: dict, convention, feet: tuple[str, ...] | None = None,
     def canon(p: np.ndarray) -> np.ndarray:
         return (p @ c.T) * s
 
-    hip, knee, ankle, toe, has_toe, length = [], [], [], [], [], []
+    hip, knee, ankle, toe, has_toe, length, rest_flat = [], [], [], [], [], [], []
     for name in names:
         leg = legs[name]
+        rest_flat.append(_rest_flat(sk, leg, c, s))
         hip.append(canon(gpos[:, leg.root]))
         knee.append(canon(gpos[:, leg.mid]))
         ankle.append(canon(gpos[:, leg.end]))
@@ -485,27 +497,67 @@ def _feet(motion, legs: dict, convention, feet: tuple[str, ...] | None = None,
         length.append(_leg_length(sk, leg, s))
     stack = lambda xs: np.stack(xs, axis=1)  # noqa: E731
     return _Feet(names, stack(hip), stack(knee), stack(ankle), stack(toe), np.array(has_toe),
-                 np.array(length), motion.fps, grot, gpos, c, s)
+                 np.array(length), motion.fps, grot, gpos, c, s, np.array(rest_flat))
 
 
-def _flat_offset(ft: _Feet, slow: np.ndarray) -> np.ndarray:
+def _toe_rest(skeleton, leg) -> np.ndarray | None:
+    """Rest position (file space) of the foot's toe point, or None."""
+    rot, pos = skeleton.rest_global
+    if leg.toe is not None:
+        t = _tip(skeleton, leg.toe)
+        return pos[leg.toe] if t is None else pos[leg.toe] + quat.rotate(rot[leg.toe], t)
+    t = _tip(skeleton, leg.end)
+    return None if t is None else pos[leg.end] + quat.rotate(rot[leg.end], t)
+
+
+def _rest_flat(skeleton, leg, to_canonical: np.ndarray, scale: float) -> float:
+    """Height of the ankle over the toe point in the rest pose, metres, when the rest pose stands (leg
+    hanging within 18 degrees of straight down, foot within 45 degrees of level); NaN otherwise (a
+    degenerate or sitting rest pose): then the clip decides."""
+    pos = np.asarray(skeleton.rest_global[1])
+    toe = _toe_rest(skeleton, leg)
+    if toe is None:
+        return 0.0
+    hip, ankle, toe = ((p @ to_canonical.T) * scale for p in (pos[leg.root], pos[leg.end], toe))
+    leg_dir, ln = _unit(ankle - hip)
+    foot_dir, fn = _unit(toe - ankle)
+    if ln < 1e-9 or fn < 1e-9 or -leg_dir[1] < np.cos(np.radians(18)) or abs(foot_dir[1]) > np.sin(np.radians(45)):
+        return float("nan")
+    return float(ankle[1] - toe[1])
+
+
+def _flat_offset(ft: _Feet, pick: np.ndarray) -> np.ndarray:
     """(K,) height of the ankle over the toe point when the foot is flat, metres.
 
-    Taken as the median over ``slow`` frames ((F, K) bool: foot still); with fewer than three such
-    frames, over the tenth of the frames where the foot moves least."""
-    f, k = ft.ankle.shape[:2]
+    From the rest pose when it stands; otherwise the median of (ankle height - toe height) over the
+    ``pick`` frames ((F, K) bool: frames where the foot is planted and neither point moves up or down),
+    or over every frame when fewer than three are picked."""
+    k = ft.ankle.shape[1]
     out = np.zeros(k)
     diff = ft.ankle[..., 1] - ft.toe[..., 1]
-    speed = np.linalg.norm(_velocity(np.concatenate([ft.ankle, ft.toe], axis=1), ft.fps, 3), axis=-1)
-    speed = np.maximum(speed[:, :k], speed[:, k:])
     for i in range(k):
         if not ft.has_toe[i]:
             continue
-        pick = slow[:, i]
-        if pick.sum() < 3:
-            pick = speed[:, i] <= np.percentile(speed[:, i], 10)
-        out[i] = float(np.median(diff[pick, i]))
+        if np.isfinite(ft.rest_flat[i]):
+            out[i] = ft.rest_flat[i]
+            continue
+        sel = pick[:, i] if pick[:, i].sum() >= 3 else np.ones(diff.shape[0], dtype=bool)
+        out[i] = float(np.median(diff[sel, i]))
     return out
+
+
+def _level_frames(ft: _Feet, flags: np.ndarray | None, st: "ContactSettings") -> np.ndarray:
+    """(F, K) frames to read the flat offset from: in contact (or, with no flags, slow) and with both
+    heel and toe moving up or down slower than climb_enter."""
+    win = st.frames(st.smoothing, ft.fps, 3)
+    va = _velocity(ft.ankle, ft.fps, win)
+    vt = _velocity(ft.toe, ft.fps, win)
+    leg = ft.leg_length[None, :]
+    level = np.maximum(np.abs(va[..., 1]), np.abs(vt[..., 1])) / leg < st.climb_enter
+    if flags is None:
+        slow = np.minimum(np.linalg.norm(va, axis=-1), np.linalg.norm(vt, axis=-1)) / leg < st.speed_enter
+        return level & slow
+    return level & flags
 
 
 class _Sole(NamedTuple):
@@ -561,18 +613,25 @@ def detect_contacts(motion, legs: dict, convention, settings: ContactSettings | 
     va = np.linalg.norm(_velocity(ft.ankle, fps, win), axis=-1)
     vt = np.linalg.norm(_velocity(ft.toe, fps, win), axis=-1)
     speed = np.minimum(va, vt) / leg[None, :]
-    both_slow = np.maximum(va, vt) / leg[None, :] < st.speed_enter
-    flat = _flat_offset(ft, both_slow)
+    flat = _flat_offset(ft, _level_frames(ft, None, st))
     sole = _sole(ft, flat).height
     sole_s = _smooth(sole, win)
 
+    climb = np.abs(_velocity(sole, fps, win)) / leg[None, :]
     flags = np.zeros((f, k), dtype=bool)
     for i in range(k):
         still = _hysteresis(speed[:, i], st.speed_enter, st.speed_exit)
+        still &= _hysteresis(climb[:, i], st.climb_enter, st.climb_exit)
         still = _close_gaps(still, st.frames(st.max_gap, fps, 0))
         level = _segment_support(sole_s[:, i], still, 25)
         over = (sole_s[:, i] - level) / leg[i]
         flags[:, i] = still & _hysteresis(over, st.height_enter, st.height_exit)
+        # Hysteresis decides whether a contact is real; it ends where the foot last met every enter
+        # threshold, not where it finally passed an exit threshold.
+        calm = (speed[:, i] < st.speed_enter) & (climb[:, i] < st.climb_enter) & (over < st.height_enter)
+        for s, e in zip(*contact_runs(flags[:, i])):
+            last = np.flatnonzero(calm[s:e])
+            flags[s + (last[-1] + 1 if last.size else 0):e, i] = False
 
     # A foot still far above the other foot is held up, not standing on something; a foot whose height
     # bends down like a thrown body's (the top of a jump, where everything is slow for a moment) is
@@ -594,8 +653,8 @@ def detect_contacts(motion, legs: dict, convention, settings: ContactSettings | 
     return _with_support(ft.names, flags, sole, fps, leg)
 
 
-# A contact's support is this low percentile of the sole's height over the contact: the ground is under
-# the foot, and noise goes both ways (common practice).
+# A contact's support is this low percentile of the sole's height over the contact's middle frames: the
+# ground is under the foot, and noise goes both ways (common practice).
 _SUPPORT_PERCENTILE = 10.0
 
 GRAVITY = 9.80665  # m/s^2, standard gravity
@@ -619,7 +678,7 @@ def _with_support(feet, flags: np.ndarray, sole: np.ndarray, fps: float, leg: np
     support = np.full(flags.shape, np.nan)
     for i in range(flags.shape[1]):
         for s, e in zip(*contact_runs(flags[:, i])):
-            support[s:e, i] = np.percentile(sole[s:e, i], _SUPPORT_PERCENTILE)
+            support[s:e, i] = _support_level(sole[s:e, i])
     ground = float(np.nanmin(support)) if flags.any() else float("nan")
     return FootContacts(tuple(feet), flags, support, fps, leg, ground)
 
@@ -635,23 +694,24 @@ def contacts_from_flags(motion, legs: dict, convention, flags: np.ndarray,
         raise RetargetError(f"contact flags have shape {flags.shape}, expected ({motion.num_frames}, {len(feet)})",
                             path=motion.source)
     ft = _feet(motion, legs, convention, tuple(feet))
-    flat = _flat_offset(ft, _slow_in_contact(ft, flags, st))
+    flat = _flat_offset(ft, _level_frames(ft, flags, st))
     return _with_support(ft.names, flags, _sole(ft, flat).height, motion.fps, ft.leg_length)
-
-
-def _slow_in_contact(ft: _Feet, flags: np.ndarray, st: ContactSettings) -> np.ndarray:
-    win = st.frames(st.smoothing, ft.fps, 3)
-    va = np.linalg.norm(_velocity(ft.ankle, ft.fps, win), axis=-1)
-    vt = np.linalg.norm(_velocity(ft.toe, ft.fps, win), axis=-1)
-    return flags & (np.maximum(va, vt) / ft.leg_length[None, :] < st.speed_enter)
 
 
 # ----- carrying contacts to another clip ------------------------------------------------------------------
 
 def _middle(s: int, e: int) -> slice:
+    """The middle frames of a contact: all but the first and last fifth."""
     n = e - s
-    cut = n // 3
-    return slice(s + cut, e - cut) if n - 2 * cut > 0 else slice(s, e)
+    cut = n // 5
+    return slice(s + cut, e - cut)
+
+
+def _support_level(sole: np.ndarray) -> float:
+    """The support under one contact from its sole heights ((n,) metres): a low percentile over the
+    middle frames (the ends, where the foot lands and leaves, depend on where exactly the contact is cut)."""
+    n = sole.shape[0]
+    return float(np.percentile(sole[_middle(0, n)], _SUPPORT_PERCENTILE))
 
 
 def _carry(contacts: FootContacts, ft: _Feet, sole: np.ndarray, st: ContactSettings) -> FootContacts:
@@ -670,7 +730,7 @@ def _carry(contacts: FootContacts, ft: _Feet, sole: np.ndarray, st: ContactSetti
             rel = float(np.nanmedian(src)) - ground_src if np.isfinite(src).any() else 0.0
             runs.append((i, s, e, rel))
             rel_list.append(rel * ratio)
-            meas_list.append(float(np.percentile(sole[s:e, i], _SUPPORT_PERCENTILE)))
+            meas_list.append(_support_level(sole[s:e, i]))
             weight.append(e - s)
     if st.ground is not None:
         ground = float(st.ground)
@@ -699,7 +759,7 @@ def carry_contacts(contacts: FootContacts, motion, legs: dict, convention,
     st = _settings(settings)
     _check_frames(contacts, motion)
     ft = _feet(motion, legs, convention, contacts.feet)
-    flat = _flat_offset(ft, _slow_in_contact(ft, np.asarray(contacts.flags), st))
+    flat = _flat_offset(ft, _level_frames(ft, np.asarray(contacts.flags), st))
     return _carry(contacts, ft, _sole(ft, flat).height, st)
 
 
@@ -773,7 +833,7 @@ def measure_contacts(motion, legs: dict, contacts: FootContacts, convention,
     st = _settings(settings)
     _check_frames(contacts, motion)
     ft = _feet(motion, legs, convention, contacts.feet)
-    flat = _flat_offset(ft, _slow_in_contact(ft, np.asarray(contacts.flags), st))
+    flat = _flat_offset(ft, _level_frames(ft, np.asarray(contacts.flags), st))
     return _measure(ft, flat, contacts, st.skate_height)
 
 
@@ -898,7 +958,7 @@ def _foot_moves(contacts: FootContacts, sole: _Sole, step: np.ndarray, blend: in
             # the support as the source did (its low percentile there), and is lifted, smoothly,
             # wherever it would still go under it.
             ground = contacts.support[s:e, i]
-            shift = ground - np.percentile(sole.height[s:e, i], _SUPPORT_PERCENTILE)
+            shift = ground - _support_level(sole.height[s:e, i])
             slide[:, 1] = shift + _envelope(np.maximum(0.0, ground - (sole.height[s:e, i] + shift)), 1)
             move[s:e, i] = slide
             weight[s:e, i] = 1.0
@@ -929,11 +989,12 @@ def _foot_moves(contacts: FootContacts, sole: _Sole, step: np.ndarray, blend: in
                 move[fr, i] = move[ns, i]
                 weight[fr, i] = _ease((fr - (ns - blend - 1)) / (blend + 1))
                 level[fr, i] = level[ns, i]
-    # Toes kept above the support while easing: lift what the eased move would leave under it.
+    # Toes kept above the support while easing: lift what the eased move would leave under it, fully
+    # in the half of the window next to the contact, fading out in the outer half.
     eased = weight[..., None] * move
     partial = (weight > 0) & (weight < 1) & np.isfinite(level)
     under = np.where(partial, np.maximum(0.0, level - (sole.height + eased[..., 1])), 0.0)
-    eased[..., 1] += under * weight
+    eased[..., 1] += under * np.minimum(1.0, 2.0 * weight)
     return eased, weight
 
 
@@ -972,7 +1033,7 @@ def fix_contacts(motion, legs: dict, contacts: FootContacts, convention,
     ft = _feet(motion, legs, convention, contacts.feet)
     f, k = contacts.flags.shape
     fps = motion.fps
-    flat = _flat_offset(ft, _slow_in_contact(ft, np.asarray(contacts.flags), st))
+    flat = _flat_offset(ft, _level_frames(ft, np.asarray(contacts.flags), st))
     sole = _sole(ft, flat)
     target_contacts = _carry(contacts, ft, sole.height, st)
     before = _measure(ft, flat, target_contacts, st.skate_height)
