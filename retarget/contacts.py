@@ -6,8 +6,8 @@ character and a 2 m one, a clip in centimetres and one in metres.
 
 A foot is seen through two points: the ankle and the toe (the toe joint's end site, else the toe joint,
 else the ankle's end site). The ankle sits a fixed distance above the sole when the foot is flat, the
-"flat offset", measured on the clip itself from frames where the foot is still. The foot's sole height is
-then min(ankle height - flat offset, toe height): the heel while the toes are up, the toes while the
+"flat offset", read from the rest pose when it stands, else from the clip's level, planted frames. The
+foot's sole height is then min(ankle height - flat offset, toe height): the heel while the toes are up, the toes while the
 heel is up. The pivot of a foot on a frame is whichever of the two is lower; a planted foot keeps its
 pivot still, it may roll from heel to toe.
 
@@ -23,14 +23,16 @@ Fixing (fix_contacts): the flags come from the source; the target's support for 
 source's support carried over (height above the source's ground, scaled by the ratio of leg lengths,
 over the target's ground). Each contact is locked where the target's pivot is at the contact's middle
 frames: the foot is moved as a rigid body (its global orientation kept) so that its pivot stops sliding
-and its sole sits on the support. The move eases in and out over a few frames around the contact. The
+and it stands on the support, never under it. The move eases in and out over a few frames around the contact. The
 legs follow by two-bone IK (hip, knee, ankle; the knee turns in its current bend plane), with an
 allowance before full extension; where a leg still cannot reach, the root is lowered smoothly. Frames
 outside contacts and their blend windows are left exactly as they were.
 
 Metrics (measure_contacts): skate is the horizontal displacement of the pivot from one contact frame to
-the next (of the slower of heel and toe when the two are level), penetration the depth of the sole under the support on contact frames, and the height-weighted
-foot skate of Zhang, Starke, Komura and Saito (2018) is v * (2 - 2^(h/H)) for h < H over every frame.
+the next (of the slower of heel and toe when the two are level), penetration the depth of the sole
+under the support on contact frames, and the height-weighted foot skate of Zhang, Starke, Komura and
+Saito (2018) is v * (2 - 2^(h/H)) for h < H, over every frame. All include capture jitter: they are
+frame-to-frame figures.
 """
 
 from __future__ import annotations
@@ -59,6 +61,10 @@ __all__ = [
     "measure_contacts",
     "contact_report",
     "contact_runs",
+    "ContactSpan",
+    "FootSummary",
+    "ContactSummary",
+    "summarize_contacts",
 ]
 
 
@@ -203,8 +209,8 @@ class FootContacts:
 class FootMetrics:
     """Per-frame contact quality of a clip's feet, against a FootContacts on the same frames.
 
-    skate: (F, K) horizontal displacement of the pivot from frame f-1 to f, metres, NaN unless the foot
-        is in contact on both frames.
+    skate: (F, K) horizontal displacement of the pivot from frame f-1 to f (of the slower of heel and
+        toe when both are level), metres, NaN unless the foot is in contact on both frames.
     penetration: (F, K) depth of the sole under the support, metres (>= 0), NaN outside contacts.
     weighted_skate: (F, K) height-weighted pivot speed v * (2 - 2^(h/H)) for h < H, else 0, m/s, on
         every frame (the first frame is 0); NaN when the clip has no contact to measure height from.
@@ -562,17 +568,14 @@ def _level_frames(ft: _Feet, flags: np.ndarray | None, st: "ContactSettings") ->
 
 class _Sole(NamedTuple):
     height: np.ndarray      # (F, K) sole height, metres
-    on_heel: np.ndarray     # (F, K) bool: the pivot is the heel (ankle), else the toe
-    pivot: np.ndarray       # (F, K, 3) pivot position (heel under the ankle, or the toe point)
+    on_heel: np.ndarray     # (F, K) bool: the pivot is the heel (under the ankle), else the toe
 
 
 def _sole(ft: _Feet, flat: np.ndarray) -> _Sole:
     heel = ft.ankle[..., 1] - flat[None, :]
     toe = ft.toe[..., 1]
     on_heel = heel <= toe
-    height = np.where(on_heel, heel, toe)
-    pivot = np.where(on_heel[..., None], ft.ankle - flat[None, :, None] * np.array([0.0, 1.0, 0.0]), ft.toe)
-    return _Sole(height, on_heel, pivot)
+    return _Sole(np.where(on_heel, heel, toe), on_heel)
 
 
 def _pivot_step(sole: _Sole, ft: _Feet, flat: np.ndarray) -> np.ndarray:
@@ -1105,3 +1108,64 @@ def fix_contacts(motion, legs: dict, contacts: FootContacts, convention,
     after = _measure(ft_after, flat, target_contacts, st.skate_height)
     report = contact_report(before, after, changed, float(drop.max(initial=0.0)))
     return fixed, report
+
+
+# ----- detection summary (what `retarget contacts` shows) ---------------------------------------------
+
+class ContactSpan(BaseModel):
+    """One contact: frames [start, stop), its time and its support height."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    start: int
+    stop: int = Field(description="first frame after the contact")
+    start_s: float
+    stop_s: float
+    support_m: float = Field(description="support height, canonical metres (+Y up)")
+
+
+class FootSummary(BaseModel):
+    """One foot's contacts and how much it slides during them."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    foot: str
+    contacts: int
+    contact_frames: int
+    share: float
+    skate_leg_per_frame: float
+    skate_cm_s: float
+    penetration_cm: float
+    weighted_skate_cm_s: float | None
+    spans: list[ContactSpan]
+
+
+class ContactSummary(BaseModel):
+    """Foot contacts found on one clip."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    file: str | None
+    frames: int
+    fps: float
+    leg_length_m: list[float]
+    ground_m: float | None
+    skate_height_cm: float
+    feet: list[FootSummary]
+
+
+def summarize_contacts(contacts: FootContacts, metrics: FootMetrics, file: str | None = None) -> ContactSummary:
+    """Per-foot contact spans and figures, for people (and --json)."""
+    feet = []
+    fps = contacts.fps
+    for i, name in enumerate(contacts.feet):
+        m = metrics.summary(i)
+        spans = [ContactSpan(start=s, stop=e, start_s=s / fps, stop_s=e / fps,
+                             support_m=float(contacts.support[s, i])) for s, e in contacts.segments(i)]
+        feet.append(FootSummary(foot=name, contacts=len(spans), contact_frames=m["contact_frames"],
+                                share=m["share"], skate_leg_per_frame=m["skate_leg_per_frame"],
+                                skate_cm_s=m["skate_cm_s"], penetration_cm=m["penetration_max_cm"],
+                                weighted_skate_cm_s=_finite(m["weighted_skate_cm_s"]), spans=spans))
+    return ContactSummary(file=file, frames=contacts.num_frames, fps=fps,
+                          leg_length_m=[float(x) for x in contacts.leg_length], ground_m=_finite(contacts.ground),
+                          skate_height_cm=metrics.skate_height * 100.0, feet=feet)
