@@ -195,5 +195,37 @@ def _format_contacts(s, flags, width: int) -> str:
     return "\n".join(out)
 
 
+@main.command("preview")
+@click.argument("clip", type=click.Path(dir_okay=False))
+@click.option("--rig", required=True, type=click.Path(dir_okay=False),
+              help="The character: a BVH file (its zero pose is the rest pose) or a glTF file.")
+@click.option("-m", "--mapping", default=None, type=click.Path(dir_okay=False),
+              help="Joint mapping file; proposed from the two skeletons when omitted.")
+@click.option("-o", "--output", required=True, type=click.Path(dir_okay=False),
+              help="The page to write (one self-contained HTML file).")
+@click.option("--plots", "plots_dir", default=None, type=click.Path(file_okay=False),
+              help="Also write PNG plots (feet, foot slide, pose fidelity) into this folder.")
+@_friendly
+def preview_cmd(clip: str, rig: str, mapping: str | None, output: str, plots_dir: str | None) -> None:
+    """Retarget CLIP onto RIG and write a page showing both side by side, with the clip's numbers."""
+    from pathlib import Path
+
+    from .io import read_motion
+    from .pipeline import retarget_clip
+    from .preview import contact_flags, mapping_pairs, plot_clip, report_numbers, write_preview
+
+    source = read_motion(clip)
+    result = retarget_clip(source, rig, mapping=mapping)
+    contacts = contact_flags(getattr(result, "contacts", None))
+    title = f"{Path(clip).name} \u2192 {Path(rig).name}"
+    write_preview(output, source, result.motion, contacts=contacts, numbers=report_numbers(result.report),
+                  title=title)
+    click.echo(f"wrote {output}")
+    if plots_dir:
+        for path in plot_clip(plots_dir, source, result.motion, contacts=contacts,
+                              pairs=mapping_pairs(result.mapping), stem=Path(clip).stem, title=title):
+            click.echo(f"wrote {path}")
+
+
 if __name__ == "__main__":  # pragma: no cover
     main()
