@@ -36,6 +36,7 @@ __all__ = [
     "contacts_from_flags",
     "carry_contacts",
     "fix_contacts",
+    "plant_feet",
     "measure_contacts",
     "two_bone_ik",
     "RetargetError",
@@ -50,7 +51,7 @@ __version__ = "0.1.0"
 # Names whose modules import pydantic or scipy load on first use, so the command line starts fast.
 _LAZY = {name: "contacts" for name in (
     "ContactSettings", "FootContacts", "FootMetrics", "ContactReport", "detect_contacts",
-    "contacts_from_flags", "carry_contacts", "fix_contacts", "measure_contacts", "two_bone_ik")}
+    "contacts_from_flags", "carry_contacts", "fix_contacts", "plant_feet", "measure_contacts", "two_bone_ik")}
 
 
 def __getattr__(name: str):

@@ -58,6 +58,7 @@ __all__ = [
     "contacts_from_flags",
     "carry_contacts",
     "fix_contacts",
+    "plant_feet",
     "measure_contacts",
     "contact_report",
     "contact_runs",
@@ -1108,6 +1109,23 @@ def fix_contacts(motion, legs: dict, contacts: FootContacts, convention,
     after = _measure(ft_after, flat, target_contacts, st.skate_height)
     report = contact_report(before, after, changed, float(drop.max(initial=0.0)))
     return fixed, report
+
+
+def plant_feet(source, source_legs: dict, source_convention, target, target_legs: dict, target_convention,
+               settings: ContactSettings | dict | None = None, fix: bool = True):
+    """The contact step of a retarget, in one call: detect on the source clip, then fix (or, with
+    fix=False, only measure) the target clip of the same frames.
+
+    Returns (target Motion, fixed or as given; ContactReport; the source's FootContacts).
+    """
+    st = _settings(settings)
+    contacts = detect_contacts(source, source_legs, source_convention, st)
+    if fix:
+        fixed, report = fix_contacts(target, target_legs, contacts, target_convention, st)
+        return fixed, report, contacts
+    carried = carry_contacts(contacts, target, target_legs, target_convention, st)
+    report = contact_report(measure_contacts(target, target_legs, carried, target_convention, st))
+    return target, report, contacts
 
 
 # ----- detection summary (what `retarget contacts` shows) ---------------------------------------------

@@ -389,3 +389,17 @@ def test_real_jump_top_is_not_a_contact(real_clips):
         conv = detect_convention(motion.skeleton, motion, body)
         contacts = detect_contacts(motion, body.legs, conv)
         assert np.nanmax(contacts.support) - contacts.ground < 0.10, path.name
+
+
+def test_plant_feet_fixes_or_only_measures():
+    """The one-call contact step: with fix=False the clip comes back untouched and the report says so."""
+    from retarget.contacts import plant_feet
+
+    motion, legs, conv, _ = demo_take("walk")
+    target = scaled(motion, 1.0, 0.8)
+    same, report, contacts = plant_feet(motion, legs, conv, target, legs, conv, fix=False)
+    assert same is target and not report.fixed and report.overall.skate_after_cm_s is None
+    assert report.overall.skate_before_cm_s > 5.0
+    fixed, report2, _ = plant_feet(motion, legs, conv, target, legs, conv)
+    assert report2.fixed and report2.overall.skate_after_cm_s < 0.01 * report2.overall.skate_before_cm_s
+    assert report2.overall.skate_before_cm_s == pytest.approx(report.overall.skate_before_cm_s)
