@@ -30,6 +30,17 @@ __all__ = [
     "Chain",
     "Limb",
     "analyze_body",
+    "ContactSettings",
+    "FootContacts",
+    "FootMetrics",
+    "ContactReport",
+    "detect_contacts",
+    "contacts_from_flags",
+    "carry_contacts",
+    "fix_contacts",
+    "plant_feet",
+    "measure_contacts",
+    "two_bone_ik",
     "RetargetError",
     "BVHError",
     "GLTFError",
@@ -38,3 +49,16 @@ __all__ = [
     "OptionError",
 ]
 __version__ = "0.1.0"
+
+# Names whose modules import pydantic or scipy load on first use, so the command line starts fast.
+_LAZY = {name: "contacts" for name in (
+    "ContactSettings", "FootContacts", "FootMetrics", "ContactReport", "detect_contacts",
+    "contacts_from_flags", "carry_contacts", "fix_contacts", "plant_feet", "measure_contacts", "two_bone_ik")}
+
+
+def __getattr__(name: str):
+    if name in _LAZY:
+        import importlib
+
+        return getattr(importlib.import_module(f".{_LAZY[name]}", __name__), name)
+    raise AttributeError(f"module 'retarget' has no attribute {name!r}")
