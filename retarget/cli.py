@@ -165,7 +165,10 @@ def apply_cmd(clip: str, rig: str, mapping: str | None, no_contact_fix: bool, ou
                            source_unit_scale=source_unit_scale, rig_up=rig_up, rig_forward=rig_forward,
                            rig_unit_scale=rig_unit_scale, frames=frames, fps=fps,
                            contact_fix=not no_contact_fix)
-    write_motion(output, result.motion)
+    from pathlib import Path
+
+    template = rig if Path(rig).suffix.lower() in (".gltf", ".glb") else None  # keeps the rig's mesh and skin
+    write_motion(output, result.motion, template=template)
     if report_path:
         atomic_write(report_path, (json.dumps(result.report.model_dump(), indent=2) + "\n").encode())
     click.echo(_format_apply(result.report, output))
