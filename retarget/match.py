@@ -137,7 +137,7 @@ def _read(skeleton: Skeleton, motion) -> _Figure:
         if foot is not None:
             flat = foot - np.dot(foot, up) * up
             if np.linalg.norm(flat) > 0.3 and float(np.dot(_unit(flat), fwd)) < -0.5:
-                cert, note = 0.5, "side names and toe direction disagree"
+                cert, note = 0.4, "side names and toe direction disagree"
     elif body.side_evidence == "geometry":
         lat = [abs(pos[lb.root, 0]) for lb in body.legs.values()]
         lat += [abs(pos[lb.root, 0] - pos[body.chest, 0]) for lb in body.arms.values()]
@@ -146,7 +146,7 @@ def _read(skeleton: Skeleton, motion) -> _Figure:
         cert = float(min(1.0, min(lat) / 0.02) * min(1.0, flat / 0.5))
         note = "sides from geometry" if cert >= 0.5 else "left/right unclear from geometry"
     else:
-        cert, note = 0.0, "left/right undecided: no side names, no toe direction"
+        cert, note = 0.0, "left/right undecided (no side names, no toe direction)"
     fig = _Figure(skeleton, body, pos, tips, body.still, _ancestor_matrix(skeleton), cert, note, facing_known)
     for c in body.chains:
         for j in c.joints:
@@ -306,7 +306,7 @@ class _Matcher:
         if "twist" in concepts_of(fig.names[j]):
             return f"extra twist joint along the {what}, no counterpart on the {other}"
         if what == "spine":
-            return f"spine joint with no counterpart: the {other}'s spine has its joints elsewhere (merged segment)"
+            return f"merged spine segment (no {other} spine joint starts near here)"
         return f"extra {label} with no counterpart on the {other}"
 
     # ----- body parts --------------------------------------------------------------------------------
@@ -415,10 +415,10 @@ class _Matcher:
         if not chains_a or not chains_b:
             for c in chains_a:
                 for q in c:
-                    self.note(q, None, "finger with no counterpart: the target hand has no fingers")
+                    self.note(q, None, "finger with no counterpart (the target hand has none)")
             for c in chains_b:
                 for q in c:
-                    self.note(None, q, "finger with no counterpart: the source hand has no fingers")
+                    self.note(None, q, "finger with no counterpart (the source hand has none)")
             return
         feat_a = self._finger_features(fa, chains_a, hand_a)
         feat_b = self._finger_features(fb, chains_b, hand_b)
@@ -506,10 +506,10 @@ class _Matcher:
             self.add(ca[i], cb[j], base * (0.6 + 0.4 * sim), label + where, sided)
         for q in ca:
             if q not in self.pairs:
-                self.note(q, None, f"{label}: joint with no counterpart on the target")
+                self.note(q, None, f"{label}, joint with no counterpart on the target")
         for q in cb:
             if q not in self.taken:
-                self.note(None, q, f"{label}: joint with no counterpart on the source")
+                self.note(None, q, f"{label}, joint with no counterpart on the source")
 
     # ----- extra chains --------------------------------------------------------------------------------
     def _attach(self, fig: _Figure, j: int, mapped) -> int | None:
@@ -667,7 +667,7 @@ class _Matcher:
         fig = self.a if side == "source" else self.b
         other = "target" if side == "source" else "source"
         if fig.anc[j, fig.body.pelvis]:
-            return "above the pelvis: the pelvis carries the body and its root motion"
+            return "above the pelvis (the pelvis carries the body and its root motion)"
         reason = self.why.get((side, j))
         if reason is None:
             c = fig.chain_of.get(j)
