@@ -245,15 +245,6 @@ def _name_cost(concepts: frozenset, role: str) -> float:
     return 0.0
 
 
-def _perpendicular(p: np.ndarray, a: np.ndarray, b: np.ndarray) -> float:
-    d = b - a
-    n2 = float(d @ d)
-    if n2 < 1e-24:
-        return 0.0
-    t = float((p - a) @ d) / n2
-    return float(np.linalg.norm(p - (a + t * d)))
-
-
 def _limb_roles(chain: list[int], pos: np.ndarray, kind: str, skeleton: Skeleton,
                 reach: np.ndarray | None = None, still: np.ndarray | None = None
                 ) -> tuple[int, int, int, int | None, float]:
@@ -288,38 +279,45 @@ def _limb_roles(chain: list[int], pos: np.ndarray, kind: str, skeleton: Skeleton
         st = np.asarray(still)[list(chain)]
         if not st.all():
             moving = ~st
-    dev = {}
+    # dev[a, b, q]: distance of joint q from the line through joints a and b, over the arc length a..b.
+    d = p[None, :, :] - p[:, None, :]                                   # d[a, b] = p[b] - p[a]
+    dd = np.einsum("abk,abk->ab", d, d)
+    w = p[None, None, :, :] - p[:, None, None, :]                       # w[a, q] = p[q] - p[a]
+    t = np.einsum("abk,aqk->abq", d, w[:, 0]) / np.where(dd > 1e-24, dd, 1.0)[:, :, None]
+    perp = w[:, 0][:, None, :, :] - t[..., None] * d[:, :, None, :]
+    arc = np.maximum(cum[None, :] - cum[:, None], 1e-12)
+    dev = (np.linalg.norm(perp, axis=-1) / arc[:, :, None]).tolist()
+    cost_of_dev = [[[3.0 * min(max((v - 0.02) / 0.04, 0.0), 1.0) for v in row] for row in plane]
+                   for plane in dev]
 
     def straight_cost(a: int, b: int) -> float:
-        c = 0.0
-        for q in range(a + 1, b):
-            key = (a, b, q)
-            if key not in dev:
-                dev[key] = _perpendicular(p[q], p[a], p[b]) / max(cum[b] - cum[a], 1e-12)
-            c += 3.0 * float(np.clip((dev[key] - 0.02) / 0.04, 0.0, 1.0))
-        return c
+        return sum(cost_of_dev[a][b][q] for q in range(a + 1, b))
+
+    segl = seg.tolist()
+    cuml = cum.tolist()
+    import math
 
     scored = []
     for i in range(n - 2):
         for j in range(i + 1, n - 1):
-            l1 = cum[j] - cum[i]
+            l1 = cuml[j] - cuml[i]
             if l1 <= tol:
                 continue
             for k in range(j + 1, n):
-                l2 = cum[k] - cum[j]
+                l2 = cuml[k] - cuml[j]
                 if l2 <= tol:
                     continue
                 cost = ((l1 / (l1 + l2) - share0) / 0.1) ** 2 - 2.0 * (l1 + l2) / total
                 cost += straight_cost(i, j) + straight_cost(j, k)
                 for role, q in enumerate((i, j, k)):
-                    if q + 1 < n and seg[q] <= tol:
+                    if q + 1 < n and segl[q] <= tol:
                         cost += 5.0
                     if moving is not None and not moving[q]:
                         cost += 4.0
                     cost += names_cost[q][role]
                 after = float(reach[chain[k]]) if reach is not None else 0.0
                 if after > tol:
-                    cost += 0.5 * np.log(after / l2 / reach0) ** 2
+                    cost += 0.5 * math.log(after / l2 / reach0) ** 2
                 else:
                     cost += 0.5
                 scored.append((cost, i, j, k))

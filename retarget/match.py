@@ -566,24 +566,28 @@ class _Matcher:
             if not open_a or not open_b:
                 continue
             cost = np.full((len(open_a), len(open_b)), 1e6)
+            att_b = np.array([-1 if (q := self._attach(fb, cb[0], self.taken)) is None else q for cb in open_b])
+            start_b = np.array([cb[0] for cb in open_b])
+            side_b = [side_of_name(fb.names[q]) for q in start_b]
+            turns: dict[tuple[int, int], np.ndarray] = {}
             for i, ca in enumerate(open_a):
                 att_a = self._attach(fa, ca[0], self.pairs)
                 if att_a is None:
                     continue
+                hit = np.flatnonzero(att_b == self.pairs[att_a].target)
                 side_a = side_of_name(fa.names[ca[0]])
-                for j, cb in enumerate(open_b):
-                    att_b = self._attach(fb, cb[0], self.taken)
-                    if att_b is None or self.pairs[att_a].target != att_b:
-                        continue
-                    side_b = side_of_name(fb.names[cb[0]])
-                    if side_a and side_b and side_a != side_b:
-                        continue
-                    turn = quat.between_vectors(self._bone_direction(fa, att_a), self._bone_direction(fb, att_b))
-                    va = quat.rotate(turn, fa.pos[ca[0]] - fa.pos[att_a])
-                    vb = fb.pos[cb[0]] - fb.pos[att_b]
-                    dist = float(np.linalg.norm(va - vb))
-                    aff = name_affinity(fa.names[ca[0]], fb.names[cb[0]])
-                    cost[i, j] = 0.5 * (dist / 0.03) ** 2 - 1.5 * aff
+                hit = [j for j in hit if not (side_a and side_b[j] and side_a != side_b[j])]
+                if not hit:
+                    continue
+                tb = self.pairs[att_a].target
+                if (att_a, tb) not in turns:
+                    turns[(att_a, tb)] = quat.between_vectors(self._bone_direction(fa, att_a),
+                                                              self._bone_direction(fb, tb))
+                va = quat.rotate(turns[(att_a, tb)], fa.pos[ca[0]] - fa.pos[att_a])
+                vb = fb.pos[start_b[hit]] - fb.pos[tb]
+                dist = np.linalg.norm(vb - va, axis=1)
+                aff = np.array([name_affinity(fa.names[ca[0]], fb.names[start_b[j]]) for j in hit])
+                cost[i, hit] = 0.5 * (dist / 0.03) ** 2 - 1.5 * aff
             rows, cols = linear_sum_assignment(cost)
             for i, j in zip(rows, cols):
                 c = cost[i, j]
