@@ -308,5 +308,59 @@ def preview_cmd(clip: str, rig: str, mapping: str | None, output: str, plots_dir
             click.echo(f"wrote {path}")
 
 
+@main.command("match")
+@click.argument("source", type=click.Path(dir_okay=False))
+@click.argument("target", type=click.Path(dir_okay=False))
+@click.option("-o", "--output", type=click.Path(dir_okay=False), default=None, metavar="MAPPING.yaml",
+              help="Write the proposed mapping here (YAML, to review and edit).")
+@click.option("--json", "as_json", is_flag=True, help="Print the mapping as JSON instead of a table.")
+@_friendly
+def match_cmd(source: str, target: str, output: str | None, as_json: bool) -> None:
+    """Propose which TARGET joint each SOURCE joint drives, with confidence and reasons."""
+    from .io import read_motion
+    from .mapping import save_mapping
+    from .match import match
+
+    src = read_motion(source)
+    tgt = read_motion(target)
+    mapping = match(src.skeleton, tgt.skeleton, src, tgt)
+    if output:
+        save_mapping(mapping, output)
+    if as_json:
+        click.echo(json.dumps(mapping.model_dump(), indent=2))
+        return
+    click.echo(_format_mapping_table(mapping, output))
+
+
+def _format_mapping_table(m, output: str | None) -> str:
+    from .mapping import LOW_CONFIDENCE
+
+    low = sum(p.confidence < LOW_CONFIDENCE for p in m.pairs)
+    un_s = [u for u in m.unmapped if u.side == "source"]
+    un_t = [u for u in m.unmapped if u.side == "target"]
+    out = [f"{m.source_file or 'source'}  ->  {m.target_file or 'target'}",
+           f"{len(m.pairs)} pairs ({low} below {LOW_CONFIDENCE:g}, marked !); unmapped: {len(un_s)} source, "
+           f"{len(un_t)} target joints", ""]
+    ws = max([len("source joint")] + [len(p.source) for p in m.pairs])
+    wt = max([len("target joint")] + [len(p.target) for p in m.pairs])
+    out.append(f"  {'source joint':<{ws}}  {'target joint':<{wt}}  sure  why")
+    for p in m.pairs:
+        line = f"{'!' if p.confidence < LOW_CONFIDENCE else ' '} {p.source:<{ws}}  {p.target:<{wt}}  " \
+               f"{p.confidence:.2f}  {p.reason}"
+        out.append(click.style(line, fg="yellow", bold=True) if p.confidence < LOW_CONFIDENCE else line)
+    for title, group in (("source", un_s), ("target", un_t)):
+        if not group:
+            continue
+        out.append("")
+        out.append(f"unmapped in the {title} ({len(group)})")
+        w = max(len(u.joint) for u in group)
+        for u in group:
+            out.append(f"  {u.joint:<{w}}  {u.reason}")
+    if output:
+        out.append("")
+        out.append(f"mapping written to {output}")
+    return "\n".join(out)
+
+
 if __name__ == "__main__":  # pragma: no cover
     main()

@@ -19,7 +19,7 @@ import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
 from .align import Alignment, align
-from .chains import BodyLayout, analyze_body
+from .chains import analyze_body
 from .convention import Convention, detect_convention
 from .errors import MappingError, OptionError
 from .motion import Motion
@@ -105,7 +105,8 @@ class RetargetReport(BaseModel):
 
 @dataclass(frozen=True)
 class Result:
-    """motion: the clip on the rig; mapping: the mapping used; report: a RetargetReport."""
+    """motion: the clip on the rig; mapping: the Mapping used (matched, loaded or given); report: a
+    RetargetReport."""
 
     motion: Motion
     mapping: Any
@@ -135,83 +136,32 @@ def _options(options: dict) -> RetargetOptions:
         raise OptionError(f"option {where}: {err.get('msg', 'invalid value')}") from None
 
 
-def _pairs_from(mapping, source: Skeleton, target: Skeleton, smotion: Motion, tmotion: Motion | None,
-                sbody: BodyLayout, tbody: BodyLayout):
-    """(pairs [(source index, target index)], the mapping object used)."""
+def _mapping_for(mapping, source: Skeleton, target: Skeleton, smotion: Motion, tmotion: Motion | None):
+    """The Mapping to use and its (source index, target index) pairs.
+
+    mapping: None (matched now), a Mapping, a mapping file, or (source, target) pairs of joint names or
+    indices (taken as given, confidence 1)."""
+    from .mapping import JointPair, Mapping, load_mapping
+    from .match import match
+
     if mapping is None:
-        try:
-            from .match import match
-        except ImportError:
-            pairs = _layout_pairs(sbody, tbody)
-            return pairs, tuple((source.names[s], target.names[t]) for s, t in pairs)
         m = match(source, target, source_motion=smotion, target_motion=tmotion)
-        return list(m.index_pairs(source, target)), m
-    if isinstance(mapping, (str, os.PathLike)):
-        try:
-            from .mapping import load_mapping
-        except ImportError:
-            raise MappingError("reading mapping files is not available in this version; leave the mapping "
-                               "out to match automatically", path=str(mapping)) from None
+    elif isinstance(mapping, (str, os.PathLike)):
         m = load_mapping(mapping, source, target)
-        return list(m.index_pairs(source, target)), m
-    if hasattr(mapping, "index_pairs"):
-        return list(mapping.index_pairs(source, target)), mapping
-    pairs = []
-    for k, item in enumerate(mapping):
-        try:
-            s, t = item[0], item[1]
-        except (TypeError, IndexError):
-            raise MappingError(f"mapping entry {k}: expected a (source, target) pair, got {item!r}") from None
-        s = source.index(s) if isinstance(s, str) else int(s)
-        t = target.index(t) if isinstance(t, str) else int(t)
-        pairs.append((s, t))
-    return pairs, tuple(mapping)
-
-
-def _spread(src: list[int], tgt: list[int]) -> list[tuple[int, int]]:
-    """Pair the inner joints of two chains by position along the chain (both ends already paired):
-    each joint of the shorter interior takes the nearest free joint of the longer one, in order."""
-    a, b = src[1:-1], tgt[1:-1]
-    if not a or not b:
-        return []
-    flip = len(a) > len(b)
-    short, long_ = (b, a) if flip else (a, b)
-    out = []
-    used = -1
-    for i, j in enumerate(short):
-        want = (i + 1) / (len(short) + 1) * (len(long_) + 1) - 1
-        k = int(np.clip(round(want), used + 1, len(long_) - (len(short) - i)))
-        used = k
-        out.append((long_[k], j) if flip else (j, long_[k]))
-    return out
-
-
-def _layout_pairs(sbody: BodyLayout, tbody: BodyLayout) -> list[tuple[int, int]]:
-    """A correspondence from body roles alone (pelvis, spine, neck, head, limb roles), used while no
-    matcher is installed."""
-    pairs = [(sbody.pelvis, tbody.pelvis), (sbody.chest, tbody.chest)]
-    pairs += _spread(list(sbody.spine), list(tbody.spine))
-    if sbody.head is not None and tbody.head is not None:
-        pairs.append((sbody.head, tbody.head))
-        sn, tn = list(sbody.neck), list(tbody.neck)
-        if len(sn) >= 2 and len(tn) >= 2:
-            pairs.append((sn[0], tn[0]))
-            pairs += _spread(sn, tn)
-    for side in ("left", "right"):
-        for kind in ("arms", "legs"):
-            s, t = getattr(sbody, kind)[side], getattr(tbody, kind)[side]
-            pairs += [(s.root, t.root), (s.mid, t.mid), (s.end, t.end)]
-            if s.lead and t.lead:
-                pairs.append((s.lead[-1], t.lead[-1]))
-            if kind == "legs" and s.toe is not None and t.toe is not None:
-                pairs.append((s.toe, t.toe))
-    seen_s, seen_t, out = set(), set(), []
-    for s, t in pairs:
-        if s not in seen_s and t not in seen_t:
-            out.append((int(s), int(t)))
-            seen_s.add(s)
-            seen_t.add(t)
-    return out
+    elif isinstance(mapping, Mapping):
+        m = mapping
+    else:
+        items = []
+        for k, item in enumerate(mapping):
+            try:
+                s, t = item[0], item[1]
+            except (TypeError, IndexError, KeyError):
+                raise MappingError(f"mapping entry {k}: expected a (source, target) pair, got {item!r}") from None
+            s = source.names[int(s)] if not isinstance(s, str) else s
+            t = target.names[int(t)] if not isinstance(t, str) else t
+            items.append(JointPair(source=s, target=t, confidence=1.0, reason="given"))
+        m = Mapping(pairs=items, source_file=source.source, target_file=target.source)
+    return m, m.index_pairs(source, target)
 
 
 # ----- report -----------------------------------------------------------------------------------------
@@ -247,8 +197,8 @@ def retarget_clip(clip, rig, mapping=None, **options) -> Result:
 
     clip: a Motion or a clip file. rig: a Skeleton, a Motion (its skeleton is the rig; its frames are
         read only when its rest pose is degenerate) or a rig file (BVH: its zero pose is the rest pose).
-    mapping: None (auto-matched), a Mapping, a mapping file, or (source, target) pairs of joint names or
-        indices.
+    mapping: None (matched automatically), a Mapping, a mapping file (YAML), or (source, target) pairs
+        of joint names or indices.
     options (see RetargetOptions): in_place, root_scale (target metres per source metre), source_up /
         source_forward / source_unit_scale and rig_up / rig_forward / rig_unit_scale (convention
         overrides), frames=(start, stop) (0-based, stop excluded), fps (resample the output),
@@ -269,7 +219,7 @@ def retarget_clip(clip, rig, mapping=None, **options) -> Result:
     tconv = detect_convention(target, rig_motion, tbody).with_overrides(
         opts.rig_up, opts.rig_forward, opts.rig_unit_scale)
 
-    pairs, used_mapping = _pairs_from(mapping, source, target, source_full, rig_motion, sbody, tbody)
+    used_mapping, pairs = _mapping_for(mapping, source, target, source_full, rig_motion)
 
     motion = source_full
     first = 0
@@ -305,6 +255,11 @@ def retarget_clip(clip, rig, mapping=None, **options) -> Result:
     if al.source_reference.label != "rest":
         why = "given" if opts.reference_frame is not None else "its rest pose has every bone along one line"
         warnings.append(f"source bone frames read from {al.source_reference.label} ({why})")
+    low = used_mapping.low_confidence()
+    if low:
+        shown = ", ".join(f"{p.source}->{p.target} ({p.confidence:.2f})" for p in low[:5])
+        more = f" and {len(low) - 5} more" if len(low) > 5 else ""
+        warnings.append(f"{len(low)} mapped pair(s) have low confidence, worth a look: {shown}{more}")
     mapped_t = {t for _, t in pairs}
     for kind in ("legs", "arms"):
         for side, limb in getattr(tbody, kind).items():
