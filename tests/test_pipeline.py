@@ -144,3 +144,40 @@ def test_real_clips_onto_demo_rigs(real_clips):
             assert np.isfinite(res.motion.rotations).all() and np.isfinite(res.motion.root_positions).all()
             feet, head = _plausible(res.motion)
             assert feet > 0.95 and head > 0.95, (clip.name, rig.name, feet, head)
+
+
+def test_mapping_file_and_given_pairs(files):
+    """A saved mapping file (the matcher's YAML) drives `apply -m` to the same clip as the automatic
+    match; given name pairs come back as a Mapping with confidence 1."""
+    from retarget.mapping import Mapping, save_mapping
+
+    auto = retarget_clip(files["clip"], files["rig"])
+    path = files["dir"] / "map.yaml"
+    save_mapping(auto.mapping, path)
+    out = files["dir"] / "mapped.bvh"
+    r = CliRunner().invoke(main, ["apply", str(files["clip"]), "--rig", str(files["rig"]), "-m", str(path),
+                                  "-o", str(out), "--no-contact-fix"])
+    assert r.exit_code == 0, r.output
+    assert "foot contacts: not applied: switched off" in r.output
+    assert quat.angle_between(read_bvh(out).rotations, auto.motion.rotations).max() < 1e-5
+    given = retarget_clip(files["clip"], files["rig"], files["names"])
+    assert isinstance(given.mapping, Mapping) and all(p.confidence == 1.0 for p in given.mapping.pairs)
+
+
+GLTF_TWINS = [(p, p.with_suffix(".glb")) for p in DEMO_RIGS if p.with_suffix(".glb").exists()]
+
+
+@pytest.mark.parametrize("bvh,glb", GLTF_TWINS, ids=lambda p: p.name)
+def test_gltf_rig_gives_the_bvh_twins_motion(bvh, glb):
+    """A demo character as a glTF rig (bone-aligned joint frames, so rest rotations are not the
+    identity) and as a BVH rig (identity rest rotations): the same world motion, within 0.01 mm (the
+    BVH's 6 decimals of metres)."""
+    clip = REPO / "demo_clips" / "capture" / "walk.bvh"
+    outs = []
+    for rig in (bvh, glb):
+        m = retarget_clip(clip, rig, contact_fix=False).motion
+        _, p = m.global_transforms()
+        outs.append((m.skeleton.names, positions_to_canonical(p, detect_convention(m.skeleton))))
+    (na, pa), (nb, pb) = outs
+    assert set(na) == set(nb)
+    assert np.abs(pa - pb[:, [nb.index(n) for n in na]]).max() < 1e-5
