@@ -183,6 +183,11 @@ def _format_apply(r, output: str) -> str:
                    f"average, {r.direction_error_max_deg:.2f} deg at worst")
     if worst is not None:
         out.append(f"aim correction: up to {worst.aim_correction_max_deg:.1f} deg ({worst.target})")
+    bent = max((j for j in r.joints if j.between_bend_max_deg is not None),
+               key=lambda j: j.between_bend_max_deg, default=None)
+    if bent is not None:
+        out.append(f"unmapped joints bent to aim: up to {bent.between_bend_max_deg:.1f} deg "
+                   f"(between {bent.target} and {bent.span_end})")
     out.append(f"root motion: scale {r.root_scale:.3f}, ground offset {100 * r.ground_offset_m:+.1f} cm"
                + (", in place" if r.in_place else ""))
     out.append(f"foot contacts: {r.contact_fix}")

@@ -57,7 +57,12 @@ class RetargetOptions(BaseModel):
 
 
 class JointFidelity(BaseModel):
-    """How one mapped target joint follows its source joint, in degrees over the clip."""
+    """How one mapped target joint follows its source joint, in degrees over the clip.
+
+    span_end: the next mapped joint of its chain (the bone span aimed); direction_error: angle between the
+    target span and the source span; aim_correction: how far the joint was turned from the plain
+    rotation transfer to aim its span; between_bend: how far the unmapped joints inside the span were
+    bent to aim it (the joint itself is then left as transferred)."""
 
     target: str
     source: str
@@ -66,6 +71,8 @@ class JointFidelity(BaseModel):
     direction_error_max_deg: float | None = None
     aim_correction_mean_deg: float = 0.0
     aim_correction_max_deg: float = 0.0
+    between_bend_mean_deg: float | None = None
+    between_bend_max_deg: float | None = None
 
 
 class SideInfo(BaseModel):
@@ -167,20 +174,23 @@ def _mapping_for(mapping, source: Skeleton, target: Skeleton, smotion: Motion, t
 # ----- report -----------------------------------------------------------------------------------------
 
 def _fidelity(al: Alignment, checks: dict) -> list[JointFidelity]:
-    """Per mapped joint: the angle between its bone span and the source span after transfer, and how far
-    aim correction turned it, in degrees (from transfer's per-span checks)."""
+    """Per mapped joint: the angle between its bone span and the source span after transfer, how far aim
+    correction turned it and bent the joints inside its span, in degrees (transfer's per-span checks)."""
     spans = {sgm.start: sgm for sgm in al.segments}
     rows = []
     for s, t in al.pairs:
         s, t = int(s), int(t)
         row = JointFidelity(target=al.target.names[t], source=al.source.names[s])
         if t in checks and len(checks[t][0]):
-            turned, err = np.degrees(checks[t][0]), np.degrees(checks[t][1])
+            turned, bent, err = (np.degrees(c) for c in checks[t])
             row.span_end = al.target.names[spans[t].end]
             row.direction_error_mean_deg = round(float(err.mean()), 4)
             row.direction_error_max_deg = round(float(err.max()), 4)
             row.aim_correction_mean_deg = round(float(turned.mean()), 4)
             row.aim_correction_max_deg = round(float(turned.max()), 4)
+            if spans[t].between:
+                row.between_bend_mean_deg = round(float(bent.mean()), 4)
+                row.between_bend_max_deg = round(float(bent.max()), 4)
         rows.append(row)
     return rows
 

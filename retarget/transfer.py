@@ -187,10 +187,11 @@ def remove_travel(path: np.ndarray, fps: float, seconds: float = 1.0) -> np.ndar
 
 
 def _carry(motion: Motion, al: Alignment, in_place: bool
-           ) -> tuple[list[np.ndarray], np.ndarray, dict[int, tuple[np.ndarray, np.ndarray]]]:
+           ) -> tuple[list[np.ndarray], np.ndarray, dict[int, tuple[np.ndarray, ...]]]:
     """Steps 1-4 and root motion. Returns (per target joint its canonical global rotations (4, F), the
-    pelvis path (F, 3) in canonical metres, and per span start joint the aim correction angle and the
-    remaining direction error, both (F,) radians)."""
+    pelvis path (F, 3) in canonical metres, and per span start joint the angle its start joint was
+    turned, the angle its in-between joints were bent and the remaining direction error, each (F,)
+    radians)."""
     tgt = al.target
     f = motion.num_frames
     nt = tgt.num_joints
@@ -208,7 +209,7 @@ def _carry(motion: Motion, al: Alignment, in_place: bool
 
     ref = al.target_reference.rotations
     offs = tgt.offsets
-    checks: dict[int, tuple[np.ndarray, np.ndarray]] = {}
+    checks: dict[int, tuple[np.ndarray, ...]] = {}
     for sg in al.segments:
         if sg.between:
             da = _const(g[sg.start], right_product(quat.conjugate(ref[sg.start]))).T
@@ -241,15 +242,14 @@ def _carry(motion: Motion, al: Alignment, in_place: bool
         aim = _between(vt, vs)
         for k in (sg.start,) + sg.between:
             g[k] = _mul(aim, g[k])
-        # Checks for the report: how far the span was turned (start joint or in-between joints), and how
-        # far the turned span still is from the source span (zero up to rounding unless a span has no
-        # length).
+        # Checks for the report: how far the span's start joint was turned, how far the in-between joints
+        # were bent, and how far the span still is from the source span (zero up to rounding unless a
+        # span has no length).
         done = _rot(aim, vt)
         cos = np.einsum("ij,ij->j", done, vs) / np.maximum(_norm(done) * _norm(vs), 1e-300)
         angle = 2.0 * np.arctan2(_norm(aim[:3]), np.abs(aim[3]))
-        if bend is not None:
-            angle = np.maximum(angle, 2.0 * np.arctan2(_norm(bend[:3]), np.abs(bend[3])))
-        checks[sg.start] = (angle, np.arccos(np.clip(cos, -1.0, 1.0)))
+        bent = np.zeros(f) if bend is None else 2.0 * np.arctan2(_norm(bend[:3]), np.abs(bend[3]))
+        checks[sg.start] = (angle, bent, np.arccos(np.clip(cos, -1.0, 1.0)))
 
     followers = set(al.followers)
     for j in range(nt):
@@ -267,12 +267,13 @@ def _carry(motion: Motion, al: Alignment, in_place: bool
 
 
 def transfer_world(motion: Motion, alignment: Alignment, in_place: bool = False
-                   ) -> tuple[np.ndarray, np.ndarray, dict[int, tuple[np.ndarray, np.ndarray]]]:
+                   ) -> tuple[np.ndarray, np.ndarray, dict[int, tuple[np.ndarray, ...]]]:
     """Target global rotations and pelvis path in canonical space.
 
     motion: a clip on alignment.source. Returns (rotations (F, Jt, 4) canonical globals, pelvis (F, 3)
     canonical metres of alignment.target_root, checks) where checks maps each span's start joint to
-    (aim correction angle (F,), remaining angle between target and source span (F,)), radians.
+    (angle the start joint was turned (F,), angle the in-between joints were bent (F,), remaining angle
+    between target and source span (F,)), radians.
     """
     g, pelvis, checks = _carry(motion, alignment, in_place)
     return np.stack([q.T for q in g], axis=1), pelvis, checks
