@@ -110,8 +110,8 @@ def test_cli_refusals_leave_no_file(files):
 
 def _plausible(motion: Motion) -> tuple[float, float]:
     """Share of frames with both ankles below the pelvis, and with the head above it (canonical up)."""
-    body = analyze_body(motion.skeleton)
-    conv = detect_convention(motion.skeleton, None, body)
+    body = analyze_body(motion.skeleton, motion)
+    conv = detect_convention(motion.skeleton, motion, body)
     _, p = motion.global_transforms()
     p = positions_to_canonical(p, conv)
     pelvis = p[:, body.pelvis, 1]
@@ -129,6 +129,19 @@ def test_demo_takes_onto_demo_rigs(rig):
         assert np.isfinite(res.motion.rotations).all() and np.isfinite(res.motion.root_positions).all()
         assert res.report.direction_error_mean_deg <= 0.5 and res.report.direction_error_max_deg <= 3.0
         assert min(_plausible(res.motion)) > 0.99, clip.name
+
+
+def test_demo_take_onto_a_degenerate_rig(real_clips):
+    """A real clip's skeleton whose zero pose is a line (every joint with position channels, the hips
+    moving under a static root) used as the rig: the rig's bone frames come from one of its frames, the
+    hips carry the path in their own position channels, the pose is upright."""
+    rig = next((c for c in real_clips if c.name == "walk_bn.bvh"), None)
+    if rig is None:
+        pytest.skip("walk_bn.bvh absent")
+    res = retarget_clip(REPO / "demo_clips" / "capture" / "walk.bvh", rig, contact_fix=False)
+    assert res.report.target.reference_pose.startswith("frame ")
+    assert res.motion.translations is not None and np.ptp(res.motion.root_positions, axis=0).max() == 0.0
+    assert min(_plausible(res.motion)) > 0.99
 
 
 @pytest.mark.skipif(not DEMO_RIGS, reason="demo rigs absent")
