@@ -10,6 +10,8 @@ from .chains import BodyLayout, Chain, Limb, analyze_body
 from .convention import Convention, detect_convention
 from .errors import (BVHError, GLTFError, MappingError, OptionError, RetargetError, SkeletonError)
 from .io import read_bvh, read_motion, write_bvh, write_motion
+from .mapping import JointPair, Mapping, UnmappedJoint, load_mapping, save_mapping
+from .match import match
 from .motion import Motion, forward_kinematics
 from .skeleton import Skeleton
 
@@ -28,6 +30,12 @@ __all__ = [
     "Chain",
     "Limb",
     "analyze_body",
+    "match",
+    "Mapping",
+    "JointPair",
+    "UnmappedJoint",
+    "load_mapping",
+    "save_mapping",
     "RetargetError",
     "BVHError",
     "GLTFError",
@@ -36,3 +44,4 @@ __all__ = [
     "OptionError",
 ]
 __version__ = "0.1.0"
+
