@@ -1219,6 +1219,20 @@ def write_rig(name: str, folder: Path) -> Skeleton:
     return skel
 
 
+def write_rig_gltf(name: str, folder: Path) -> Path:
+    """Write <folder>/<name>.glb: the same rig as a skinned glTF character. Joint axes are bone-aligned
+    (each joint's local +Y along its bone, as many game rigs have them), the body is one box per bone
+    bound to the joint it hangs from, and the file is in glTF's space (+Y up, faces +Z, metres)."""
+    from retarget.convention import Convention
+    from retarget.io.gltf import write_gltf_rig
+    from retarget.io.gltf_rig import bone_aligned
+
+    builder, space = RIGS[name][0], RIGS[name][1]
+    conv = Convention(space.up, space.forward, 1.0 / space.units_per_metre, space.units)
+    folder.mkdir(parents=True, exist_ok=True)
+    return write_gltf_rig(folder / f"{name}.glb", bone_aligned(builder()), mesh=True, convention=conv)
+
+
 def generate(out: Path = HERE, takes=None, rigs=None) -> dict[str, BuiltTake]:
     """Write the takes into out/capture and the rigs into out/rigs (all of them by default)."""
     out = Path(out)
@@ -1227,6 +1241,7 @@ def generate(out: Path = HERE, takes=None, rigs=None) -> dict[str, BuiltTake]:
         built[name] = write_take(name, out / "capture")
     for name in (RIGS if rigs is None else rigs):
         write_rig(name, out / "rigs")
+        write_rig_gltf(name, out / "rigs")
     return built
 
 

@@ -27,13 +27,16 @@ confidence instead of guessing silently.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from .chains import CENTRE, LEFT, RIGHT, BodyLayout, Chain, analyze_body
-from .mapping import JointPair, Mapping, UnmappedJoint, hierarchy_signature
 from .names import FINGER_CONCEPTS, concepts_of, name_affinity, side_of_name
 from .skeleton import Skeleton
+
+if TYPE_CHECKING:
+    from .mapping import Mapping
 
 __all__ = ["match"]
 
@@ -736,6 +739,8 @@ def match(source: Skeleton, target: Skeleton, source_motion=None, target_motion=
     carries a confidence in [0, 1] and a reason, every unpaired joint a reason.
     Raises SkeletonError when a skeleton has no recognisable body (no legs, arms or torso).
     """
+    from .mapping import JointPair, Mapping, UnmappedJoint, hierarchy_signature
+
     fa = _read(source, source_motion)
     fb = _read(target, target_motion)
     m = _Matcher(fa, fb)
