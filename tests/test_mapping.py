@@ -188,14 +188,21 @@ def test_shipped_demo_mappings_fit_every_demo_take():
     takes = sorted((root / "demo_clips" / "capture").glob("*.bvh"))
     if not files or not takes:
         pytest.skip("demo clips or mappings absent")
+    from retarget import read_motion
+
     for f in files:
-        rig = read_bvh(root / "demo_clips" / "rigs" / (f.stem.split("_to_", 1)[1] + ".bvh")).skeleton
-        for take in takes:
-            m = load_mapping(f, read_bvh(take).skeleton, rig)
-            got = m.as_dict()
-            assert got["tm_pelvis"] == rig.names[0]
-            expect = DEMO_TRUTH[f.stem.split("_to_", 1)[1]]
-            assert {k: got.get(k) for k in expect} == expect, f.name
+        name = f.stem.split("_to_", 1)[1]
+        # The BVH rig and, when present, the same character as a glTF rig: one hierarchy, one mapping.
+        rigs = [read_motion(p).skeleton for p in sorted((root / "demo_clips" / "rigs").glob(name + ".*"))
+                if p.suffix in (".bvh", ".glb", ".gltf")]
+        assert rigs
+        for rig in rigs:
+            for take in takes:
+                m = load_mapping(f, read_bvh(take).skeleton, rig)
+                got = m.as_dict()
+                assert got["tm_pelvis"] == rig.names[0]
+                expect = DEMO_TRUTH[name]
+                assert {k: got.get(k) for k in expect} == expect, f.name
 
 
 # The demo rigs' key joints as demo_clips/README.md describes them (left side; right mirrors it).
