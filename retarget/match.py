@@ -27,13 +27,16 @@ confidence instead of guessing silently.
 from __future__ import annotations
 
 from dataclasses import dataclass, field
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from .chains import CENTRE, LEFT, RIGHT, BodyLayout, Chain, analyze_body
-from .mapping import JointPair, Mapping, UnmappedJoint, hierarchy_signature
 from .names import FINGER_CONCEPTS, concepts_of, name_affinity, side_of_name
 from .skeleton import Skeleton
+
+if TYPE_CHECKING:
+    from .mapping import Mapping
 
 __all__ = ["match"]
 
@@ -288,7 +291,8 @@ class _Matcher:
             sim = _overlap(sa[i], sb[j], eps)
             if sim <= 0:
                 return -1.0
-            return sim + 0.25 * name_affinity(na[ja[i]], nb[jb[j]]) - _MIN_GAIN
+            # Equal overlaps: the joint pivoting nearer the same place wins.
+            return sim + 0.25 * name_affinity(na[ja[i]], nb[jb[j]]) - _MIN_GAIN - 0.2 * abs(sa[i][0] - sb[j][0])
 
         for i, j, g in _align(len(ja), len(jb), gain):
             sim = _overlap(sa[i], sb[j], eps)
@@ -422,6 +426,36 @@ class _Matcher:
             return
         feat_a = self._finger_features(fa, chains_a, hand_a)
         feat_b = self._finger_features(fb, chains_b, hand_b)
+        single_a = len(chains_a) == 1 and not feat_a[0][1] and len(chains_b) >= 2
+        single_b = len(chains_b) == 1 and not feat_b[0][1] and len(chains_a) >= 2
+        if single_a or single_b:
+            # One unnamed finger chain for the whole hand (a mitten): it follows the finger that best
+            # continues the hand's line.
+            many_fig, many, many_feat = (fb, chains_b, feat_b) if single_a else (fa, chains_a, feat_a)
+            limb = many_fig.body.arms[side]
+            axis = _unit(many_fig.pos[limb.end] - many_fig.pos[limb.mid])
+            best, best_cos = None, -2.0
+            for k, c in enumerate(many):
+                if many_feat[k][1] == "thumb":
+                    continue
+                pts = [many_fig.pos[q] for q in c] + [many_fig.tips[q] for q in c
+                                                      if not np.isnan(many_fig.tips[q]).any()]
+                d = _unit(np.mean(pts, axis=0) - many_fig.pos[limb.end])
+                cos = -2.0 if d is None or axis is None else float(d @ axis)
+                if cos > best_cos + 1e-9:
+                    best, best_cos = k, cos
+            if best is not None:
+                ca, cb = (chains_a[0], many[best]) if single_a else (many[best], chains_b[0])
+                kind = many_feat[best][1] or "central"
+                other = "target" if single_b else "source"
+                self._pair_chain(ca, cb, f"{side} {kind} finger", 0.5 + 0.3 * max(best_cos, 0.0), True,
+                                 note=f"one finger chain on the {other} hand")
+            reason_side = "target" if single_b else "source"
+            for c in many:
+                for q in c:
+                    self.note(q if single_b else None, q if single_a else None,
+                              f"finger with no counterpart (the {reason_side} hand has one finger chain)")
+            return
         from scipy.optimize import linear_sum_assignment
 
         cost = np.full((len(chains_a), len(chains_b)), 1e6)
@@ -438,14 +472,15 @@ class _Matcher:
             kind_a, kind_b = feat_a[i][1], feat_b[j][1]
             if c > 0.35 and not (kind_a and kind_a == kind_b):
                 continue
+            note = ""
             if kind_a and kind_a == kind_b:
                 label = f"{side} {kind_a}"
             elif (kind_a or kind_b) and not (kind_a and kind_b):
-                label = f"{side} {kind_a or kind_b} (by position)"
+                label, note = f"{side} {kind_a or kind_b}", "by position"
             else:
-                label = f"{side} finger (by position)"
+                label, note = f"{side} finger", "by position"
             base = 0.45 + 0.45 * float(np.clip(1.0 - c / 0.35, 0.0, 1.0)) if c > 0 else 0.9
-            self._pair_chain(chains_a[i], chains_b[j], label, base, True)
+            self._pair_chain(chains_a[i], chains_b[j], label, base, True, note)
             done_a.add(i)
             done_b.add(j)
         for i, c in enumerate(chains_a):
@@ -478,7 +513,8 @@ class _Matcher:
             out.append((float(r), kind))
         return out
 
-    def _pair_chain(self, ca: list[int], cb: list[int], label: str, base: float, sided: bool) -> None:
+    def _pair_chain(self, ca: list[int], cb: list[int], label: str, base: float, sided: bool,
+                    note: str = "") -> None:
         """Align two chains hanging from paired joints by the stretch each joint's bone covers."""
         fa, fb = self.a, self.b
 
@@ -502,14 +538,15 @@ class _Matcher:
 
         for i, j, g in _align(len(ca), len(cb), gain):
             sim = max(_overlap(sa[i], sb[j], _EPS), 0.5 if i == j == 0 else 0.0)
-            where = f", joint {i + 1}" if len(ca) > 1 else ""
-            self.add(ca[i], cb[j], base * (0.6 + 0.4 * sim), label + where, sided)
+            extra = ([f"joint {i + 1}"] if len(ca) > 1 else []) + ([note] if note else [])
+            reason = label + (f" ({'; '.join(extra)})" if extra else "")
+            self.add(ca[i], cb[j], base * (0.6 + 0.4 * sim), reason, sided)
         for q in ca:
             if q not in self.pairs:
-                self.note(q, None, f"{label}, joint with no counterpart on the target")
+                self.note(q, None, f"no counterpart on the target ({label})")
         for q in cb:
             if q not in self.taken:
-                self.note(None, q, f"{label}, joint with no counterpart on the source")
+                self.note(None, q, f"no counterpart on the source ({label})")
 
     # ----- extra chains --------------------------------------------------------------------------------
     def _attach(self, fig: _Figure, j: int, mapped) -> int | None:
@@ -596,12 +633,12 @@ class _Matcher:
                 ca, cb = open_a[i], open_b[j]
                 sided = bool(side_of_name(fa.names[ca[0]]) or side_of_name(fb.names[cb[0]])) or \
                     fa.chain_of[ca[0]].side != CENTRE
-                label = self._extra_label(fa.names[ca[0]], fb.names[cb[0]])
+                label, how = self._extra_label(fa.names[ca[0]], fb.names[cb[0]])
                 side = fa.chain_of[ca[0]].side
                 if side != CENTRE and not label.startswith(side):
                     label = f"{side} {label}"
                 base = 0.35 + 0.5 * float(np.clip(1.0 - c, 0.0, 1.0))
-                self._pair_chain(ca, cb, label, base, sided)
+                self._pair_chain(ca, cb, label, base, sided, how)
 
     @staticmethod
     def _generations(fig: _Figure, chains: list[list[int]]) -> list[list[list[int]]]:
@@ -622,13 +659,13 @@ class _Matcher:
         return [[chains[k] for k in sorted(gen)] for gen in nx.topological_generations(forest)]
 
     @staticmethod
-    def _extra_label(a: str, b: str) -> str:
+    def _extra_label(a: str, b: str) -> tuple[str, str]:
         ca, cb = concepts_of(a) - {"end"}, concepts_of(b) - {"end"}
         words = ca & cb if ca and cb else ca | cb
         if not words:
-            return "extra joint (by position on its parent)"
+            return "extra joint", "by position on its parent"
         how = "by name and position" if ca & cb else "by position on its parent"
-        return _describe(words) + f" ({how})"
+        return _describe(words), how
 
     # ----- the whole match ---------------------------------------------------------------------------
     def run(self) -> None:
@@ -702,6 +739,8 @@ def match(source: Skeleton, target: Skeleton, source_motion=None, target_motion=
     carries a confidence in [0, 1] and a reason, every unpaired joint a reason.
     Raises SkeletonError when a skeleton has no recognisable body (no legs, arms or torso).
     """
+    from .mapping import JointPair, Mapping, UnmappedJoint, hierarchy_signature
+
     fa = _read(source, source_motion)
     fb = _read(target, target_motion)
     m = _Matcher(fa, fb)

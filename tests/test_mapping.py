@@ -174,3 +174,44 @@ def test_low_confidence_pairs_are_marked_in_the_file():
     text = format_mapping(m)
     assert "{source: a, target: b, confidence: 0.3, reason: guess}  # check" in text
     assert "{source: c, target: d, confidence: 0.9}\n" in text
+
+
+def test_shipped_demo_mappings_fit_every_demo_take():
+    """The reviewed files in mappings/ load against the capture skeleton of every demo take (all share
+    one skeleton) and the rig they name, and pair the key joints the demo's notes describe."""
+    from pathlib import Path
+
+    from retarget import read_bvh
+
+    root = Path(__file__).resolve().parents[1]
+    files = sorted((root / "mappings").glob("tallowmere_to_*.yaml"))
+    takes = sorted((root / "demo_clips" / "capture").glob("*.bvh"))
+    if not files or not takes:
+        pytest.skip("demo clips or mappings absent")
+    from retarget import read_motion
+
+    for f in files:
+        name = f.stem.split("_to_", 1)[1]
+        # The BVH rig and, when present, the same character as a glTF rig: one hierarchy, one mapping.
+        rigs = [read_motion(p).skeleton for p in sorted((root / "demo_clips" / "rigs").glob(name + ".*"))
+                if p.suffix in (".bvh", ".glb", ".gltf")]
+        assert rigs
+        for rig in rigs:
+            for take in takes:
+                m = load_mapping(f, read_bvh(take).skeleton, rig)
+                got = m.as_dict()
+                assert got["tm_pelvis"] == rig.names[0]
+                expect = DEMO_TRUTH[name]
+                assert {k: got.get(k) for k in expect} == expect, f.name
+
+
+# The demo rigs' key joints as demo_clips/README.md describes them (left side; right mirrors it).
+DEMO_TRUTH = {
+    "brannoc_stocky": {"tm_L_clavicle": "collar_l", "tm_L_humerus": "shoulder_l", "tm_L_forearm": "elbow_l",
+                       "tm_L_hand": "wrist_l", "tm_L_femur": "hip_l", "tm_L_tibia": "knee_l",
+                       "tm_L_foot": "ankle_l", "tm_L_toe": "toe_l", "tm_R_hand": "wrist_r", "tm_head": "head"},
+    "quillon_lanky": {"tm_L_clavicle": "lfShoulderBlade", "tm_L_humerus": "lfArmUpper",
+                      "tm_L_forearm": "lfArmLower", "tm_L_hand": "lfHand", "tm_L_femur": "lfLegUpper",
+                      "tm_L_tibia": "lfLegLower", "tm_L_foot": "lfFoot", "tm_L_toe": "lfToe",
+                      "tm_R_hand": "rtHand", "tm_head": "head"},
+}
