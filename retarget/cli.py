@@ -363,7 +363,17 @@ def _format_apply(r, output: str) -> str:
     out.append(f"root motion: scale {r.root_scale:.3f}, ground offset {100 * r.ground_offset_m:+.1f} cm"
                + (", in place" if r.in_place else ""))
     out.append(f"foot contacts: {r.contact_fix}")
-    out.extend(f"warning: {w}" for w in r.warnings if not w.startswith("foot contacts"))
+    if r.contacts is not None:
+        for f in r.contacts.feet:
+            line = (f"  {f.foot:<6} {f.contacts} contacts, {f.contact_frames} frames; slide "
+                    f"{f.skate_before_cm_s:.2f} cm/s")
+            if f.skate_after_cm_s is not None:
+                line += f" -> {f.skate_after_cm_s:.2f} cm/s"
+            line += f", sinks {f.penetration_before_cm:.2f} cm"
+            if f.penetration_after_cm is not None:
+                line += f" -> {f.penetration_after_cm:.2f} cm"
+            out.append(line)
+    out.extend(f"warning: {w}" for w in r.warnings)
     return "\n".join(out)
 
 

@@ -1,4 +1,4 @@
-"""One clip end to end: read, match (when no mapping is given), align, transfer, [contacts], report.
+"""One clip end to end: read, match (when no mapping is given), align, transfer, contacts, report.
 
     result = retarget_clip("take.bvh", "rig.bvh")            # auto-matched
     result = retarget_clip(clip, rig, "rig.mapping.yaml", in_place=True, fps=30)
@@ -20,6 +20,7 @@ from pydantic import BaseModel, ConfigDict, Field, ValidationError
 
 from .align import Alignment, align
 from .chains import analyze_body
+from .contacts import ContactReport, plant_feet
 from .convention import Convention, detect_convention
 from .errors import MappingError, OptionError
 from .motion import Motion
@@ -28,8 +29,6 @@ from .timing import resample, select_frames
 from .transfer import transfer
 
 __all__ = ["RetargetOptions", "JointFidelity", "SideInfo", "RetargetReport", "Result", "retarget_clip"]
-
-CONTACT_FIX_PENDING = "not applied: foot-contact fixing is not available in this version"
 
 # A span pointing further than this from the source on some frame earns a warning (common practice:
 # a few degrees are invisible on a character, ten are not).
@@ -54,6 +53,7 @@ class RetargetOptions(BaseModel):
     reference_frame: int | None = Field(default=None, ge=0)
     twist: Literal["chain", "facing"] = "chain"
     contact_fix: bool = True
+    contact_settings: dict | None = None
 
 
 class JointFidelity(BaseModel):
@@ -104,6 +104,7 @@ class RetargetReport(BaseModel):
     ground_offset_m: float
     in_place: bool
     contact_fix: str
+    contacts: ContactReport | None = None
     joints: list[JointFidelity]
     direction_error_mean_deg: float | None
     direction_error_max_deg: float | None
@@ -113,11 +114,12 @@ class RetargetReport(BaseModel):
 @dataclass(frozen=True)
 class Result:
     """motion: the clip on the rig; mapping: the Mapping used (matched, loaded or given); report: a
-    RetargetReport."""
+    RetargetReport; contacts: the FootContacts found on the source (frames of the source selection)."""
 
     motion: Motion
     mapping: Any
     report: RetargetReport
+    contacts: Any = None
 
 
 # ----- inputs -----------------------------------------------------------------------------------------
@@ -245,10 +247,10 @@ def retarget_clip(clip, rig, mapping=None, **options) -> Result:
     checks: dict = {}
     out = transfer(motion, al, in_place=opts.in_place, checks=checks)
 
-    # Foot contacts: detection on the source and foot locking on the target go here once available.
-    contact_note = CONTACT_FIX_PENDING if opts.contact_fix else "not applied: switched off"
-    if opts.contact_fix:
-        warnings.append("foot contacts were not fixed: " + CONTACT_FIX_PENDING.split(": ", 1)[1])
+    # Foot contacts: detected on the source, carried to the rig's feet, locked there (or only measured).
+    out, contact_report, found = plant_feet(motion, sbody.legs, sconv, out, tbody.legs, tconv,
+                                        settings=opts.contact_settings, fix=opts.contact_fix)
+    contact_note = "applied" if opts.contact_fix else "not applied: switched off (measured only)"
 
     joints = _fidelity(al, checks)
     if opts.fps is not None:
@@ -298,8 +300,8 @@ def retarget_clip(clip, rig, mapping=None, **options) -> Result:
         unmapped_target=[n for j, n in enumerate(target.names) if j not in mapped_t],
         unmapped_source=[n for j, n in enumerate(source.names) if j not in mapped_s],
         root_scale=round(al.root_scale, 6), ground_offset_m=round(al.ground_offset, 6), in_place=opts.in_place,
-        contact_fix=contact_note, joints=joints,
+        contact_fix=contact_note, contacts=contact_report, joints=joints,
         direction_error_mean_deg=round(float(np.mean(errs_mean)), 4) if errs_mean else None,
         direction_error_max_deg=round(float(np.max(errs_max)), 4) if errs_max else None,
         warnings=warnings)
-    return Result(out, used_mapping, report)
+    return Result(out, used_mapping, report, found)
