@@ -340,6 +340,7 @@ def apply_cmd(clip: str, rig: str, mapping: str | None, no_contact_fix: bool, ou
     from pathlib import Path
 
     template = rig if Path(rig).suffix.lower() in (".gltf", ".glb") else None  # keeps the rig's mesh and skin
+    Path(output).parent.mkdir(parents=True, exist_ok=True)
     write_motion(output, result.motion, template=template)
     if report_path:
         atomic_write(report_path, (json.dumps(result.report.model_dump(), indent=2) + "\n").encode())
