@@ -183,17 +183,45 @@ def from_matrix(m: np.ndarray) -> np.ndarray:
     return np.where(q[..., 3:4] < 0, -q, q)
 
 
+def _matrix_entry(q: np.ndarray, r: int, c: int) -> np.ndarray:
+    """Entry (r, c) of to_matrix(q), by the same expression, without building the other eight."""
+    x, y, z, w = q[..., 0], q[..., 1], q[..., 2], q[..., 3]
+    comp = (x, y, z)
+    if r == c:
+        a, b = (comp[i] for i in range(3) if i != r)
+        return 1 - 2 * (a * a + b * b)
+    # Off the diagonal: 2 * (q_r q_c -/+ q_o w), the sign by the entry's side (see to_matrix).
+    o = 3 - r - c
+    lo, hi = min(r, c), max(r, c)
+    prod = comp[lo] * comp[hi]
+    other = comp[o] * w
+    # to_matrix: m01 = xy - zw, m02 = xz + yw, m12 = yz - xw; the transposes flip the sign.
+    minus_above = (lo, hi) in ((0, 1), (1, 2))
+    minus = minus_above if r < c else not minus_above
+    return 2 * (prod - other) if minus else 2 * (prod + other)
+
+
 def _tait_bryan_angles(q: np.ndarray, order: str) -> np.ndarray:
     """Intrinsic Tait-Bryan angles (..., 3) in radians with the middle angle in [-pi/2, pi/2]."""
+    if q.ndim == 1:  # one rotation: work on a (1, 4) array so the entries are arrays, not scalars
+        return _tait_bryan_angles(q[None], order)[0]
     i, j, k = (_AXES[c] for c in order)
-    m = to_matrix(q)
     # Sign of the permutation (i, j, k): +1 for cyclic orders (XYZ, YZX, ZXY).
-    sign = 1.0 if (j - i) % 3 == 1 else -1.0
-    # For R = R_i(a) R_j(b) R_k(c): R[i, k] = sign * sin(b).
-    mid = np.arcsin(np.clip(sign * m[..., i, k], -1.0, 1.0))
-    first = np.arctan2(-sign * m[..., j, k], m[..., k, k])
-    last = np.arctan2(-sign * m[..., i, j], m[..., i, i])
-    return np.stack([first, mid, last], axis=-1)
+    cyclic = (j - i) % 3 == 1
+    # For R = R_i(a) R_j(b) R_k(c): R[i, k] = sign * sin(b). Only five entries of R are needed.
+    out = np.empty(q.shape[:-1] + (3,))
+    m_ik = _matrix_entry(q, i, k)
+    if not cyclic:
+        np.negative(m_ik, out=m_ik)
+    np.clip(m_ik, -1.0, 1.0, out=m_ik)
+    np.arcsin(m_ik, out=out[..., 1])
+    m_jk, m_ij = _matrix_entry(q, j, k), _matrix_entry(q, i, j)
+    if cyclic:  # -sign * m
+        np.negative(m_jk, out=m_jk)
+        np.negative(m_ij, out=m_ij)
+    np.arctan2(m_jk, _matrix_entry(q, k, k), out=out[..., 0])
+    np.arctan2(m_ij, _matrix_entry(q, i, i), out=out[..., 2])
+    return out
 
 
 def to_euler(q: np.ndarray, order: str, degrees: bool = False) -> np.ndarray:
@@ -233,6 +261,45 @@ def _wrap(a: np.ndarray) -> np.ndarray:
     return (a + np.pi) % (2.0 * np.pi) - np.pi
 
 
+_TWO_PI = 2.0 * np.pi
+
+
+def _wrap_small(a: np.ndarray) -> np.ndarray:
+    """_wrap for angles in [-pi, 2 pi] (bit for bit: there (a + pi) % 2pi is a + pi or a + pi - 2pi, and
+    that subtraction is exact)."""
+    y = a + np.pi
+    np.subtract(y, _TWO_PI, out=y, where=y >= _TWO_PI)
+    y -= np.pi
+    return y
+
+
+def _unwrap_small(p: np.ndarray) -> np.ndarray:
+    """np.unwrap(p, axis=0) for angles in [-pi, pi], bit for bit, with the work spent only on the columns
+    that jump (by pi or more) somewhere."""
+    up = p + 0.0  # np.unwrap adds a zero correction to every frame after the first (-0.0 becomes 0.0)
+    up[0] = p[0]
+    if p.shape[0] < 2:
+        return up
+    flat_p = p.reshape(p.shape[0], -1)
+    dd = flat_p[1:] - flat_p[:-1]
+    jumps = np.abs(dd) >= np.pi
+    cols = np.flatnonzero(jumps.any(axis=0))
+    if cols.size == 0:
+        return up
+    d = dd[:, cols]
+    # np.unwrap: ddmod = mod(dd + pi, 2 pi) - pi, with -pi turned to pi where dd > 0; here dd + pi lies in
+    # [-pi, 3 pi], where the mod is one exact add or subtract.
+    y = d + np.pi
+    y = np.where(y < 0, y + _TWO_PI, np.where(y >= _TWO_PI, y - _TWO_PI, y))
+    ddmod = y - np.pi
+    ddmod[(ddmod == -np.pi) & (d > 0)] = np.pi
+    correct = ddmod - d
+    correct[~jumps[:, cols]] = 0.0
+    flat_up = up.reshape(up.shape[0], -1)
+    flat_up[1:, cols] = flat_p[1:, cols] + np.cumsum(correct, axis=0)
+    return up
+
+
 def to_euler_continuous(q: np.ndarray, order: str, degrees: bool = False) -> np.ndarray:
     """Intrinsic Euler angles along axis 0 (frames) that change smoothly from frame to frame.
 
@@ -250,27 +317,52 @@ def to_euler_continuous(q: np.ndarray, order: str, degrees: bool = False) -> np.
     n = canon.shape[0]
     if n == 0:
         return canon
-    # Carry the first angle over gimbal-locked frames from the last free frame (forward fill).
-    locked = np.abs(np.cos(canon[..., 1])) < _GIMBAL_COS
+    # Carry the first angle over gimbal-locked frames from the last free frame (forward fill). A frame can
+    # only be locked where |sin(mid)| is within 1e-11 of 1, so the cosines are taken there only.
+    near = np.abs(canon[..., 1]) > np.pi / 2 - 1e-5
+    locked = np.zeros(near.shape, dtype=bool)
+    if np.any(near):
+        locked[near] = np.abs(np.cos(canon[..., 1][near])) < _GIMBAL_COS
     if np.any(locked):
         idx = np.where(locked, 0, np.arange(n).reshape((n,) + (1,) * (locked.ndim - 1)))
         idx = np.maximum.accumulate(idx, axis=0)
         fill = np.take_along_axis(canon[..., 0], idx, axis=0)
         fill = np.where(locked & (idx == 0) & locked[:1], 0.0, fill)
         _settle_gimbal(canon, q, order, fill_first=fill)
-    alt = np.stack([canon[..., 0] + np.pi, np.pi - canon[..., 1], canon[..., 2] + np.pi], axis=-1)
+        # The settled last angle lies in [-2 pi, 2 pi]: bring it back to [-pi, pi) like the others.
+        last = canon[..., 2]
+        last[locked] = _wrap(last[locked])
+    a, b, c = canon[..., 0], canon[..., 1], canon[..., 2]
+    chosen = canon
     if n > 1:
-        d_same = np.sum(np.abs(_wrap(canon[1:] - canon[:-1])), axis=-1)
-        d_flip = np.sum(np.abs(_wrap(alt[1:] - canon[:-1])), axis=-1)
+        # Wrapped distances to the previous frame's canonical angles, of this frame's two solutions.
+        # With A, B, C the wrapped changes of the three angles (each in [0, pi]): the same solution is
+        # A + B + C away, the other one (pi - A) + (pi - |b + b_prev|) + (pi - C) away.
+        da = np.abs(a[1:] - a[:-1])
+        np.subtract(_TWO_PI, da, out=da, where=da > np.pi)
+        dc = np.abs(c[1:] - c[:-1])
+        np.subtract(_TWO_PI, dc, out=dc, where=dc > np.pi)
+        d_same = da + np.abs(b[1:] - b[:-1])
+        d_same += dc
+        d_flip = 3.0 * np.pi - da
+        d_flip -= np.abs(b[1:] + b[:-1])
+        d_flip -= dc
         flip = d_flip < d_same - 1e-12
-        parity = np.concatenate([np.zeros((1,) + flip.shape[1:], dtype=bool),
-                                 np.cumsum(flip, axis=0) % 2 == 1], axis=0)
-        chosen = np.where(parity[..., None], alt, canon)
+        if np.any(flip):
+            parity = np.empty(canon.shape[:-1], dtype=bool)
+            parity[0] = False
+            np.logical_xor.accumulate(flip, axis=0, out=parity[1:])
+            chosen = np.empty_like(canon)
+            chosen[..., 0] = np.where(parity, a + np.pi, a)
+            chosen[..., 1] = np.where(parity, np.pi - b, b)
+            chosen[..., 2] = np.where(parity, c + np.pi, c)
+            chosen = _wrap_small(chosen)
+        else:
+            chosen = _wrap_small(canon)
     else:
-        chosen = canon
-    chosen = _wrap(chosen)
-    chosen = np.unwrap(chosen, axis=0)
-    return np.rad2deg(chosen) if degrees else chosen
+        chosen = _wrap_small(canon)
+    chosen = _unwrap_small(chosen)
+    return np.rad2deg(chosen, out=chosen) if degrees else chosen
 
 
 def slerp(q0: np.ndarray, q1: np.ndarray, t: np.ndarray) -> np.ndarray:

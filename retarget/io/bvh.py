@@ -390,51 +390,155 @@ def _hierarchy_text(sk: Skeleton) -> list[str]:
 
 
 def _channel_values(motion: Motion) -> np.ndarray:
-    """(F, C) channel values in file order: positions in file units, rotations in continuous degrees."""
+    """(F, C) channel values in file order: positions in file units, rotations in continuous degrees.
+
+    One Euler conversion per distinct rotation order (all its joints at once)."""
     sk = motion.skeleton
     f = motion.num_frames
-    trans = motion.local_translations()
-    cols: list[np.ndarray] = []
+    starts = np.concatenate([[0], np.cumsum([len(c) for c in sk.channels])]).astype(int)
+    values = np.empty((f, int(starts[-1])))
+    groups: dict[str, tuple[list[int], list[list[int]]]] = {}
+    trans = None
     for j, chans in enumerate(sk.channels):
-        if not chans:
-            continue
-        block = np.empty((f, len(chans)))
-        rot_cols = [k for k, c in enumerate(chans) if c in ROTATION_CHANNELS]
+        rot_cols = [int(starts[j]) + k for k, c in enumerate(chans) if c in ROTATION_CHANNELS]
         if rot_cols:
-            order = "".join(chans[k][0] for k in rot_cols)
-            if len(order) == 3:
-                block[:, rot_cols] = quat.to_euler_continuous(np.ascontiguousarray(motion.rotations[:, j]),
-                                                              order, degrees=True)
-            else:
+            order = "".join(c[0] for c in chans if c in ROTATION_CHANNELS)
+            if len(order) != 3:
                 raise BVHError(f"joint {sk.names[j]!r}: writing needs three rotation channels, has {order!r}")
+            joints, cols = groups.setdefault(order, ([], []))
+            joints.append(j)
+            cols.append(rot_cols)
         for k, c in enumerate(chans):
             if c in POSITION_CHANNELS:
-                block[:, k] = trans[:, j, "XYZ".index(c[0])]
-        cols.append(block)
-    if not cols:
-        return np.zeros((f, 0))
-    values = np.concatenate(cols, axis=1)
-    values = np.round(values, 6) + 0.0  # + 0.0 turns -0.0 into 0.0
+                if j == 0:
+                    src = motion.root_positions
+                else:
+                    if trans is None:
+                        trans = motion.local_translations()
+                    src = trans[:, j]
+                values[:, starts[j] + k] = src[:, "XYZ".index(c[0])]
+    for order, (joints, cols) in groups.items():
+        q = motion.rotations[:, joints] if len(joints) < sk.num_joints else motion.rotations
+        values[:, np.array(cols)] = quat.to_euler_continuous(q, order, degrees=True)
     return values
 
 
-def format_bvh(motion: Motion) -> str:
-    """The BVH text of a clip (hierarchy kept as given, 6 decimals, continuous Euler angles)."""
+def _pow10_ascii(width: int) -> np.ndarray:
+    """For every d < 10**width, its ``width`` decimal digits (zero-padded) as ASCII bytes packed in text
+    order into one little-endian uint32 (width <= 4)."""
+    d = np.arange(10 ** width, dtype=np.uint32)
+    word = np.zeros_like(d)
+    for pos in range(width):
+        digit = d // 10 ** (width - 1 - pos) % 10
+        word |= (48 + digit) << (8 * (4 - width + pos))
+    return word
+
+
+def _head_table(sep: bool) -> np.ndarray:
+    """Index 2 u + neg (u < 1000, or < 100 with sep) -> the sign and the digits of u right-aligned in 4
+    bytes, NUL-padded on the left (a NUL is dropped from the text later); with sep, byte 0 is a space."""
+    n = 100 if sep else 1000
+    out = np.zeros((n, 2, 4), dtype=np.uint8)
+    for u in range(n):
+        for neg in (0, 1):
+            text = (("-" if neg else "") + (str(u) if u else "")).encode()
+            if text:
+                out[u, neg, 4 - len(text):] = np.frombuffer(text, np.uint8)
+            if sep:
+                out[u, neg, 0] = 32
+    return out.reshape(-1, 4).view("<u4").ravel()
+
+
+# Lookup tables for the fixed-decimal formatter (built once, 50 kB in all).
+_FRAC4 = _pow10_ascii(4)                      # last four fraction digits
+# ones digit, '.', first two fraction digits; index ones * 100 + first two fraction digits
+_ONES_POINT_FRAC2 = (48 + np.arange(1000, dtype=np.uint32) // 100) | np.uint32(46 << 8) | \
+    _pow10_ascii(2)[np.arange(1000) % 100]
+_HEAD_SEP = _head_table(True)                 # separator, sign and up to two more integer digits
+_HEAD = _head_table(False)                    # sign and up to three more integer digits
+# Base-1000 chunks: 2 part + neg -> leading chunk with its sign, 2000 + part -> inner chunk "\0ddd", 3000 -> empty.
+_CHUNKS = np.concatenate([_HEAD, _pow10_ascii(3), [0]]).astype("<u4")
+_FAST_LIMIT = 1e15                            # |value| * 1e6 below this: digits by int32 arithmetic
+
+
+def _fixed6(values: np.ndarray) -> bytes:
+    """The text of (F, C) values, '%.6f' of round(v, 6) + 0.0 (so never '-0.000000'), one space between
+    values and a newline after each row: the same bytes as the '%' operator gives.
+
+    Each value becomes k = rint(v * 1e6) (exactly what np.round(v, 6) computes before its division; for
+    |v| < 1e9 the decimal digits of k are the digits '%.6f' prints). The text is assembled in a uint32
+    array, one row of words per value: separator, sign and integer digits right-aligned and NUL-padded,
+    then ones digit + '.' + two fraction digits, then four fraction digits, all from lookup tables; the
+    NUL padding is dropped at the end."""
+    f, c = values.shape
+    n = f * c
+    if n == 0:
+        return b"\n" * f
+    a = np.multiply(values, 1e6).ravel()
+    np.rint(a, out=a)
+    neg = a < 0
+    np.abs(a, out=a)
+    top = float(a.max())
+    if not top < _FAST_LIMIT:  # huge or not finite: the plain formatting
+        row = " ".join(["%.6f"] * c) + "\n"
+        return ((row * f) % tuple((np.round(values, 6) + 0.0).ravel())).encode("ascii")
+    hi = a / 1e6           # exact quotient rounds below the next integer: floor is the integer part
+    np.floor(hi, out=hi)
+    a -= hi * 1e6          # exact (integers below 2**53)
+    lo = a.astype(np.int32)
+    hi = hi.astype(np.int32)
+    f12 = lo // 10000      # first two fraction digits
+    lo -= f12 * 10000      # last four
+    u = hi // 10           # the integer part without its ones digit
+    hi -= u * 10
+    hi *= 100
+    hi += f12              # ones digit * 100 + first two fraction digits
+    if top < 1e9:          # |v| < 1000: separator, sign, hundreds and tens in one word
+        words = np.empty((n, 3), dtype="<u4")
+        u *= 2
+        u += neg
+        np.take(_HEAD_SEP, u, out=words[:, 0])
+    else:
+        # Separator word, then base-1000 chunks of u, most significant first; the leading chunk carries
+        # the sign and no leading zeros, inner chunks are zero-padded, chunks left of the leading one are
+        # empty.
+        chunks = max(1, len(str(int(top // 1e6) // 10)) + 2) // 3
+        words = np.empty((n, 2 + chunks + 1), dtype="<u4")
+        words[:, 0] = 32
+        rest = u
+        for k in range(chunks):
+            above = rest // 1000
+            part = rest - above * 1000
+            inner = above > 0
+            lead = ~inner if k == 0 else ~inner & (rest > 0)
+            idx = np.where(inner, part + 2000, np.where(lead, 2 * part + neg, 3000))
+            np.take(_CHUNKS, idx, out=words[:, chunks - k])
+            rest = above
+    words[:, -2] = _ONES_POINT_FRAC2[hi]
+    words[:, -1] = _FRAC4[lo]
+    text = words.view(np.uint8).reshape(f, -1)
+    text[:, 0] = 10        # each row's first value starts a line
+    text[0, 0] = 0
+    return text.tobytes().translate(None, b"\x00") + b"\n"
+
+
+def _file_bytes(motion: Motion) -> bytes:
     sk = motion.skeleton
-    values = _channel_values(motion)
     lines = _hierarchy_text(sk)
     lines.append("MOTION")
     lines.append(f"Frames: {motion.num_frames}")
     lines.append(f"Frame Time: {1.0 / motion.fps:.10g}")
-    head = "\n".join(lines) + "\n"
-    if values.size == 0:
-        return head + "\n" * motion.num_frames
-    row = " ".join(["%.6f"] * values.shape[1]) + "\n"
-    # One formatting call for the whole block is much faster than savetxt's per-row loop.
-    return head + (row * values.shape[0]) % tuple(values.ravel())
+    head = ("\n".join(lines) + "\n").encode("utf-8")
+    if not any(sk.channels):
+        return head + b"\n" * motion.num_frames
+    return head + _fixed6(_channel_values(motion))
+
+
+def format_bvh(motion: Motion) -> str:
+    """The BVH text of a clip (hierarchy kept as given, 6 decimals, continuous Euler angles)."""
+    return _file_bytes(motion).decode("utf-8")
 
 
 def write_bvh(path: str | os.PathLike, motion: Motion) -> Path:
     """Write a clip to BVH atomically (temporary file in the destination folder, then rename)."""
-    text = format_bvh(motion)
-    return atomic_write(path, text.encode("utf-8"))
+    return atomic_write(path, _file_bytes(motion))
