@@ -183,45 +183,56 @@ def from_matrix(m: np.ndarray) -> np.ndarray:
     return np.where(q[..., 3:4] < 0, -q, q)
 
 
-def _matrix_entry(q: np.ndarray, r: int, c: int) -> np.ndarray:
-    """Entry (r, c) of to_matrix(q), by the same expression, without building the other eight."""
-    x, y, z, w = q[..., 0], q[..., 1], q[..., 2], q[..., 3]
-    comp = (x, y, z)
+def _matrix_entry(comps: tuple[np.ndarray, ...], r: int, c: int) -> np.ndarray:
+    """Entry (r, c) of to_matrix(q), by the same expression, without building the other eight.
+    comps: the quaternions' (x, y, z, w) components, each (...)."""
+    x, y, z, w = comps
+    xyz = (x, y, z)
     if r == c:
-        a, b = (comp[i] for i in range(3) if i != r)
+        a, b = (xyz[i] for i in range(3) if i != r)
         return 1 - 2 * (a * a + b * b)
     # Off the diagonal: 2 * (q_r q_c -/+ q_o w), the sign by the entry's side (see to_matrix).
     o = 3 - r - c
     lo, hi = min(r, c), max(r, c)
-    prod = comp[lo] * comp[hi]
-    other = comp[o] * w
+    prod = xyz[lo] * xyz[hi]
+    other = xyz[o] * w
     # to_matrix: m01 = xy - zw, m02 = xz + yw, m12 = yz - xw; the transposes flip the sign.
     minus_above = (lo, hi) in ((0, 1), (1, 2))
     minus = minus_above if r < c else not minus_above
     return 2 * (prod - other) if minus else 2 * (prod + other)
 
 
-def _tait_bryan_angles(q: np.ndarray, order: str) -> np.ndarray:
-    """Intrinsic Tait-Bryan angles (..., 3) in radians with the middle angle in [-pi/2, pi/2]."""
-    if q.ndim == 1:  # one rotation: work on a (1, 4) array so the entries are arrays, not scalars
-        return _tait_bryan_angles(q[None], order)[0]
+def _tait_bryan_planes(comps: tuple[np.ndarray, ...], order: str) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Intrinsic Tait-Bryan angles in radians, the middle one in [-pi/2, pi/2], as three arrays (...).
+    comps: the (x, y, z, w) components of unit quaternions, each (...), at least one-dimensional."""
     i, j, k = (_AXES[c] for c in order)
     # Sign of the permutation (i, j, k): +1 for cyclic orders (XYZ, YZX, ZXY).
     cyclic = (j - i) % 3 == 1
     # For R = R_i(a) R_j(b) R_k(c): R[i, k] = sign * sin(b). Only five entries of R are needed.
-    out = np.empty(q.shape[:-1] + (3,))
-    m_ik = _matrix_entry(q, i, k)
+    m_ik = _matrix_entry(comps, i, k)
     if not cyclic:
         np.negative(m_ik, out=m_ik)
     np.clip(m_ik, -1.0, 1.0, out=m_ik)
-    np.arcsin(m_ik, out=out[..., 1])
-    m_jk, m_ij = _matrix_entry(q, j, k), _matrix_entry(q, i, j)
+    mid = np.arcsin(m_ik, out=m_ik)
+    m_jk, m_ij = _matrix_entry(comps, j, k), _matrix_entry(comps, i, j)
     if cyclic:  # -sign * m
         np.negative(m_jk, out=m_jk)
         np.negative(m_ij, out=m_ij)
-    np.arctan2(m_jk, _matrix_entry(q, k, k), out=out[..., 0])
-    np.arctan2(m_ij, _matrix_entry(q, i, i), out=out[..., 2])
-    return out
+    first = np.arctan2(m_jk, _matrix_entry(comps, k, k), out=m_jk)
+    last = np.arctan2(m_ij, _matrix_entry(comps, i, i), out=m_ij)
+    return first, mid, last
+
+
+def _planes(q: np.ndarray) -> tuple[np.ndarray, ...]:
+    """The four components of quaternions (..., 4) as contiguous arrays (...) (at least (1,))."""
+    comps = np.moveaxis(np.atleast_2d(q), -1, 0).copy()
+    return tuple(comps)
+
+
+def _tait_bryan_angles(q: np.ndarray, order: str) -> np.ndarray:
+    """Intrinsic Tait-Bryan angles (..., 3) in radians with the middle angle in [-pi/2, pi/2]."""
+    out = np.stack(_tait_bryan_planes(_planes(q), order), axis=-1)
+    return out[0] if q.ndim == 1 else out
 
 
 def to_euler(q: np.ndarray, order: str, degrees: bool = False) -> np.ndarray:
@@ -300,6 +311,9 @@ def _unwrap_small(p: np.ndarray) -> np.ndarray:
     return up
 
 
+_BLOCK = 1 << 17  # elements per work block: a block's temporaries stay small enough to be reused in cache
+
+
 def to_euler_continuous(q: np.ndarray, order: str, degrees: bool = False) -> np.ndarray:
     """Intrinsic Euler angles along axis 0 (frames) that change smoothly from frame to frame.
 
@@ -313,27 +327,40 @@ def to_euler_continuous(q: np.ndarray, order: str, degrees: bool = False) -> np.
     """
     order = _check_order(order)
     q = np.asarray(q, dtype=np.float64)
-    canon = _tait_bryan_angles(q, order)
-    n = canon.shape[0]
+    n = q.shape[0]
     if n == 0:
-        return canon
+        return np.empty(q.shape[:-1] + (3,))
+    # Whole tracks (all frames) of a few rotations at a time.
+    flat = q.reshape(n, -1, 4)
+    out = np.empty(flat.shape[:2] + (3,))
+    step = max(1, _BLOCK // n)
+    for k in range(0, flat.shape[1], step):
+        out[:, k: k + step] = _euler_tracks(flat[:, k: k + step], order, degrees)
+    return out.reshape(q.shape[:-1] + (3,))
+
+
+def _euler_tracks(q: np.ndarray, order: str, degrees: bool) -> np.ndarray:
+    """to_euler_continuous of (F, K, 4) tracks, F >= 1."""
+    n = q.shape[0]
+    # Work on contiguous planes: one array (F, ...) per component and per angle.
+    a, b, c = _tait_bryan_planes(_planes(q), order)
     # Carry the first angle over gimbal-locked frames from the last free frame (forward fill). A frame can
     # only be locked where |sin(mid)| is within 1e-11 of 1, so the cosines are taken there only.
-    near = np.abs(canon[..., 1]) > np.pi / 2 - 1e-5
-    locked = np.zeros(near.shape, dtype=bool)
+    near = np.abs(b) > np.pi / 2 - 1e-5
     if np.any(near):
-        locked[near] = np.abs(np.cos(canon[..., 1][near])) < _GIMBAL_COS
-    if np.any(locked):
-        idx = np.where(locked, 0, np.arange(n).reshape((n,) + (1,) * (locked.ndim - 1)))
-        idx = np.maximum.accumulate(idx, axis=0)
-        fill = np.take_along_axis(canon[..., 0], idx, axis=0)
-        fill = np.where(locked & (idx == 0) & locked[:1], 0.0, fill)
-        _settle_gimbal(canon, q, order, fill_first=fill)
-        # The settled last angle lies in [-2 pi, 2 pi]: bring it back to [-pi, pi) like the others.
-        last = canon[..., 2]
-        last[locked] = _wrap(last[locked])
-    a, b, c = canon[..., 0], canon[..., 1], canon[..., 2]
-    chosen = canon
+        locked = np.zeros(near.shape, dtype=bool)
+        locked[near] = np.abs(np.cos(b[near])) < _GIMBAL_COS
+        if np.any(locked):
+            canon = np.stack([a, b, c], axis=-1)
+            idx = np.where(locked, 0, np.arange(n).reshape((n,) + (1,) * (locked.ndim - 1)))
+            idx = np.maximum.accumulate(idx, axis=0)
+            fill = np.take_along_axis(canon[..., 0], idx, axis=0)
+            fill = np.where(locked & (idx == 0) & locked[:1], 0.0, fill)
+            _settle_gimbal(canon, q, order, fill_first=fill)
+            # The settled last angle lies in [-2 pi, 2 pi]: bring it back to [-pi, pi) like the others.
+            last = canon[..., 2]
+            last[locked] = _wrap(last[locked])
+            a, b, c = (np.ascontiguousarray(canon[..., i]) for i in range(3))
     if n > 1:
         # Wrapped distances to the previous frame's canonical angles, of this frame's two solutions.
         # With A, B, C the wrapped changes of the three angles (each in [0, pi]): the same solution is
@@ -344,25 +371,26 @@ def to_euler_continuous(q: np.ndarray, order: str, degrees: bool = False) -> np.
         np.subtract(_TWO_PI, dc, out=dc, where=dc > np.pi)
         d_same = da + np.abs(b[1:] - b[:-1])
         d_same += dc
+        d_same -= 1e-12
         d_flip = 3.0 * np.pi - da
         d_flip -= np.abs(b[1:] + b[:-1])
         d_flip -= dc
-        flip = d_flip < d_same - 1e-12
+        flip = d_flip < d_same
         if np.any(flip):
-            parity = np.empty(canon.shape[:-1], dtype=bool)
+            parity = np.empty(b.shape, dtype=bool)
             parity[0] = False
             np.logical_xor.accumulate(flip, axis=0, out=parity[1:])
-            chosen = np.empty_like(canon)
-            chosen[..., 0] = np.where(parity, a + np.pi, a)
-            chosen[..., 1] = np.where(parity, np.pi - b, b)
-            chosen[..., 2] = np.where(parity, c + np.pi, c)
-            chosen = _wrap_small(chosen)
+            a = np.where(parity, a + np.pi, a)
+            b = np.where(parity, np.pi - b, b)
+            c = np.where(parity, c + np.pi, c)
+    out = np.empty(q.shape[:-1] + (3,))
+    for i, angle in enumerate((a, b, c)):
+        angle = _unwrap_small(_wrap_small(angle))
+        if degrees:
+            np.rad2deg(angle, out=out[..., i])
         else:
-            chosen = _wrap_small(canon)
-    else:
-        chosen = _wrap_small(canon)
-    chosen = _unwrap_small(chosen)
-    return np.rad2deg(chosen, out=chosen) if degrees else chosen
+            out[..., i] = angle
+    return out
 
 
 def slerp(q0: np.ndarray, q1: np.ndarray, t: np.ndarray) -> np.ndarray:

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import os
 import tempfile
+from collections.abc import Iterable
 from pathlib import Path
 
 from ..errors import RetargetError
@@ -11,8 +12,10 @@ from ..errors import RetargetError
 __all__ = ["atomic_write"]
 
 
-def atomic_write(path: str | os.PathLike, data: bytes) -> Path:
-    """Write ``data`` to ``path`` through a temporary file in the same folder and an atomic rename."""
+def atomic_write(path: str | os.PathLike, data: bytes | Iterable[bytes]) -> Path:
+    """Write ``data`` (bytes, or an iterable of bytes pieces written in turn) to ``path`` through a
+    temporary file in the same folder and an atomic rename. An error while the pieces are produced
+    leaves no file behind."""
     path = Path(path)
     folder = path.parent if str(path.parent) else Path(".")
     if not folder.is_dir():
@@ -20,7 +23,11 @@ def atomic_write(path: str | os.PathLike, data: bytes) -> Path:
     fd, tmp = tempfile.mkstemp(dir=folder, prefix=f".{path.name}.", suffix=".part")
     try:
         with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
+            if isinstance(data, (bytes, bytearray, memoryview)):
+                fh.write(data)
+            else:
+                for piece in data:
+                    fh.write(piece)
         os.replace(tmp, path)
     except BaseException:
         try:

@@ -461,9 +461,30 @@ _CHUNKS = np.concatenate([_HEAD, _pow10_ascii(3), [0]]).astype("<u4")
 _FAST_LIMIT = 1e15                            # |value| * 1e6 below this: digits by int32 arithmetic
 
 
+_BLOCK_VALUES = 1 << 14   # values formatted per block: the block's work arrays stay in the CPU cache
+
+
 def _fixed6(values: np.ndarray) -> bytes:
     """The text of (F, C) values, '%.6f' of round(v, 6) + 0.0 (so never '-0.000000'), one space between
-    values and a newline after each row: the same bytes as the '%' operator gives.
+    values and a newline after each row: the same bytes as the '%' operator gives."""
+    return b"".join(_fixed6_blocks(values))
+
+
+def _fixed6_blocks(values: np.ndarray):
+    """_fixed6's text in pieces of whole rows (a generator of bytes)."""
+    f, c = values.shape
+    if f * c == 0:
+        yield b"\n" * f
+        return
+    rows = max(1, _BLOCK_VALUES // c)
+    for r0 in range(0, f, rows):
+        yield _fixed6_rows(values[r0: r0 + rows], first=r0 == 0)
+    yield b"\n"
+
+
+def _fixed6_rows(values: np.ndarray, first: bool) -> bytes | bytearray:
+    """Rows of values as text; each row but the file's first starts with the newline that ends the row
+    before it.
 
     Each value becomes k = rint(v * 1e6) (exactly what np.round(v, 6) computes before its division; for
     |v| < 1e9 the decimal digits of k are the digits '%.6f' prints). The text is assembled in a uint32
@@ -472,29 +493,25 @@ def _fixed6(values: np.ndarray) -> bytes:
     NUL padding is dropped at the end."""
     f, c = values.shape
     n = f * c
-    if n == 0:
-        return b"\n" * f
     a = np.multiply(values, 1e6).ravel()
     np.rint(a, out=a)
     neg = a < 0
     np.abs(a, out=a)
     top = float(a.max())
     if not top < _FAST_LIMIT:  # huge or not finite: the plain formatting
-        row = " ".join(["%.6f"] * c) + "\n"
-        return ((row * f) % tuple((np.round(values, 6) + 0.0).ravel())).encode("ascii")
-    hi = a / 1e6           # exact quotient rounds below the next integer: floor is the integer part
-    np.floor(hi, out=hi)
-    a -= hi * 1e6          # exact (integers below 2**53)
-    lo = a.astype(np.int32)
-    hi = hi.astype(np.int32)
-    f12 = lo // 10000      # first two fraction digits
-    lo -= f12 * 10000      # last four
-    u = hi // 10           # the integer part without its ones digit
-    hi -= u * 10
-    hi *= 100
-    hi += f12              # ones digit * 100 + first two fraction digits
+        row = " ".join(["%.6f"] * c)
+        text = "\n".join([row] * f) % tuple((np.round(values, 6) + 0.0).ravel())
+        return (text if first else "\n" + text).encode("ascii")
+    # k = 10000 q + lo: lo the last four fraction digits; q = 1000 u + mid: mid the ones digit and the first
+    # two fraction digits, u the integer part without its ones digit.
     if top < 1e9:          # |v| < 1000: separator, sign, hundreds and tens in one word
-        words = np.empty((n, 3), dtype="<u4")
+        k = a.astype(np.int32)
+        q = k // 10000
+        k -= q * 10000
+        u = q // 1000
+        q -= u * 1000
+        buf = bytearray(n * 12)
+        words = np.frombuffer(buf, dtype="<u4").reshape(n, 3)
         u *= 2
         u += neg
         np.take(_HEAD_SEP, u, out=words[:, 0])
@@ -502,43 +519,53 @@ def _fixed6(values: np.ndarray) -> bytes:
         # Separator word, then base-1000 chunks of u, most significant first; the leading chunk carries
         # the sign and no leading zeros, inner chunks are zero-padded, chunks left of the leading one are
         # empty.
-        chunks = max(1, len(str(int(top // 1e6) // 10)) + 2) // 3
-        words = np.empty((n, 2 + chunks + 1), dtype="<u4")
+        k = a.astype(np.int64)
+        q = k // 10000
+        k -= q * 10000
+        u = q // 1000
+        q -= u * 1000
+        k, q, u = k.astype(np.int32), q.astype(np.int32), u.astype(np.int32)
+        chunks = (len(str(int(top // 1e7))) + 2) // 3
+        buf = bytearray(n * 4 * (chunks + 3))
+        words = np.frombuffer(buf, dtype="<u4").reshape(n, chunks + 3)
         words[:, 0] = 32
         rest = u
-        for k in range(chunks):
+        for j in range(chunks):
             above = rest // 1000
             part = rest - above * 1000
             inner = above > 0
-            lead = ~inner if k == 0 else ~inner & (rest > 0)
+            lead = ~inner if j == 0 else ~inner & (rest > 0)
             idx = np.where(inner, part + 2000, np.where(lead, 2 * part + neg, 3000))
-            np.take(_CHUNKS, idx, out=words[:, chunks - k])
+            np.take(_CHUNKS, idx, out=words[:, chunks - j])
             rest = above
-    words[:, -2] = _ONES_POINT_FRAC2[hi]
-    words[:, -1] = _FRAC4[lo]
+    np.take(_ONES_POINT_FRAC2, q, out=words[:, -2])
+    np.take(_FRAC4, k, out=words[:, -1])
     text = words.view(np.uint8).reshape(f, -1)
     text[:, 0] = 10        # each row's first value starts a line
-    text[0, 0] = 0
-    return text.tobytes().translate(None, b"\x00") + b"\n"
+    if first:
+        text[0, 0] = 0
+    return buf.translate(None, b"\x00")
 
 
-def _file_bytes(motion: Motion) -> bytes:
+def _file_blocks(motion: Motion):
+    """The file's bytes in pieces: the header, then blocks of frame lines."""
     sk = motion.skeleton
     lines = _hierarchy_text(sk)
     lines.append("MOTION")
     lines.append(f"Frames: {motion.num_frames}")
     lines.append(f"Frame Time: {1.0 / motion.fps:.10g}")
-    head = ("\n".join(lines) + "\n").encode("utf-8")
+    yield ("\n".join(lines) + "\n").encode("utf-8")
     if not any(sk.channels):
-        return head + b"\n" * motion.num_frames
-    return head + _fixed6(_channel_values(motion))
+        yield b"\n" * motion.num_frames
+        return
+    yield from _fixed6_blocks(_channel_values(motion))
 
 
 def format_bvh(motion: Motion) -> str:
     """The BVH text of a clip (hierarchy kept as given, 6 decimals, continuous Euler angles)."""
-    return _file_bytes(motion).decode("utf-8")
+    return b"".join(_file_blocks(motion)).decode("utf-8")
 
 
 def write_bvh(path: str | os.PathLike, motion: Motion) -> Path:
     """Write a clip to BVH atomically (temporary file in the destination folder, then rename)."""
-    return atomic_write(path, _file_bytes(motion))
+    return atomic_write(path, _file_blocks(motion))
