@@ -34,6 +34,12 @@ __all__ = [
 ]
 
 _AXES = {"X": 0, "Y": 1, "Z": 2}
+_TWO_PI = 2.0 * np.pi
+# Work block sizes: a block's temporaries stay small enough to be reused from the CPU cache (and from the
+# allocator's free lists) instead of being mapped afresh for every array, which costs more than the
+# arithmetic on them. Measured best on a 2-core machine (benchmarks/).
+_BLOCK = 1 << 17        # quaternions per block in to_euler_continuous (whole tracks)
+_EULER_BLOCK = 1 << 13  # rotations per block in from_euler
 _EULER_ORDERS = ("XYZ", "XZY", "YXZ", "YZX", "ZXY", "ZYX")
 
 
@@ -122,37 +128,89 @@ def _axis_quaternions(angles: np.ndarray, axis: int) -> np.ndarray:
     return q
 
 
-def from_euler(angles: np.ndarray, order: str, degrees: bool = False) -> np.ndarray:
+def _half_angle_cos_sin(angles: np.ndarray, degrees: bool) -> tuple[np.ndarray, np.ndarray]:
+    """cos and sin of half of each angle, shaped like ``angles``, through the tangent of a quarter angle.
+
+    numpy's tangent is vectorised (and within an ulp), its sine and cosine of float64 are not: with
+    t = tan(x / 4), cos(x / 2) = (1 - t^2) / (1 + t^2) and sin(x / 2) = 2 t / (1 + t^2), exact to a couple
+    of ulps. The angle is first reduced by whole turns k (|x| <= half a turn, so |t| <= 1); each whole
+    turn flips the sign of the half-angle pair."""
+    turn = 360.0 if degrees else _TWO_PI
+    turns = np.rint(angles * (1.0 / turn))
+    x = angles - turns * turn
+    x *= (np.pi / 720.0) if degrees else 0.25
+    t = np.tan(x, out=x)
+    t2 = t * t
+    inv = 1.0 + t2
+    np.divide(1.0, inv, out=inv)
+    cos = 1.0 - t2
+    cos *= inv
+    sin = np.multiply(t, 2.0, out=t2)
+    sin *= inv
+    if turns.any():
+        half = turns * 0.5                  # m or m + 0.5 for even or odd turns
+        sign = np.floor(half)
+        sign -= half
+        sign *= 4.0
+        sign += 1.0                         # 1 for even, -1 for odd
+        cos *= sign
+        sin *= sign
+    return cos, sin
+
+
+def _tait_bryan_quaternions(angles: np.ndarray, order: str, degrees: bool, out: np.ndarray) -> None:
+    """Closed form of q_i(a) q_j(b) q_k(c) for (..., 3) angles into out (..., 4). With e_i e_j = eps e_k
+    (eps = +1 for cyclic orders): w = ca cb cc - eps sa sb sc, q_i = sa cb cc + eps ca sb sc,
+    q_j = ca sb cc - eps sa cb sc, q_k = ca cb sc + eps sa sb cc (half angles)."""
+    i, j, k = (_AXES[c] for c in order)
+    # Work on contiguous planes (one per angle, one per component), then interleave once.
+    c, s = _half_angle_cos_sin(np.moveaxis(angles, -1, 0).copy(), degrees)
+    ca, cb, cc = c
+    sa, sb, sc = s
+    cbcc, sbsc, sbcc, cbsc = cb * cc, sb * sc, sb * cc, cb * sc
+    if (j - i) % 3 == 1:
+        esa, eca = sa, ca
+    else:
+        esa, eca = -sa, -ca
+    planes = np.empty((4,) + ca.shape)
+    np.subtract(ca * cbcc, esa * sbsc, out=planes[3])
+    np.add(sa * cbcc, eca * sbsc, out=planes[i])
+    np.subtract(ca * sbcc, esa * cbsc, out=planes[j])
+    np.add(ca * cbsc, esa * sbcc, out=planes[k])
+    out[...] = np.moveaxis(planes, 0, -1)
+
+
+def from_euler(angles: np.ndarray, order: str, degrees: bool = False, *, out: np.ndarray | None = None
+               ) -> np.ndarray:
     """Quaternions from intrinsic Euler angles.
 
     angles: (..., k) with k = len(order), one angle per axis in the order given.
     order: one to three of "X", "Y", "Z" (repeats allowed), intrinsic, as in BVH channel lists.
+    out: optional (..., 4) float64 array (a strided view is fine) to write the result into.
     Returns (..., 4).
     """
     order = _check_order(order)
     angles = np.asarray(angles, dtype=np.float64)
+    if len(order) == 3 and len(set(order)) == 3:
+        if out is None:
+            out = np.empty(angles.shape[:-1] + (4,))
+        if angles.ndim == 1:
+            _tait_bryan_quaternions(angles[None], order, degrees, out[None])
+            return out
+        # Blocks of a few thousand rotations along the first axis.
+        per = int(np.prod(angles.shape[1:-1], dtype=np.int64))
+        step = max(1, _EULER_BLOCK // max(per, 1))
+        for b in range(0, angles.shape[0], step):
+            _tait_bryan_quaternions(angles[b: b + step], order, degrees, out[b: b + step])
+        return out
     if degrees:
         angles = np.deg2rad(angles)
-    if len(order) == 3 and len(set(order)) == 3:
-        # Closed form of q_i(a) q_j(b) q_k(c): with e_i e_j = eps e_k (eps = +1 for cyclic orders),
-        # w = ca cb cc - eps sa sb sc, q_i = sa cb cc + eps ca sb sc, q_j = ca sb cc - eps sa cb sc,
-        # q_k = ca cb sc + eps sa sb cc (half angles).
-        i, j, k = (_AXES[c] for c in order)
-        eps = 1.0 if (j - i) % 3 == 1 else -1.0
-        half = 0.5 * angles
-        c, s = np.cos(half), np.sin(half)
-        ca, cb, cc = c[..., 0], c[..., 1], c[..., 2]
-        sa, sb, sc = s[..., 0], s[..., 1], s[..., 2]
-        cbcc, sbsc, sbcc, cbsc = cb * cc, sb * sc, sb * cc, cb * sc
-        q = np.empty(angles.shape[:-1] + (4,))
-        q[..., 3] = ca * cbcc - eps * sa * sbsc
-        q[..., i] = sa * cbcc + eps * ca * sbsc
-        q[..., j] = ca * sbcc - eps * sa * cbsc
-        q[..., k] = ca * cbsc + eps * sa * sbcc
-        return q
     q = _axis_quaternions(angles[..., 0], _AXES[order[0]])
     for i in range(1, len(order)):
         q = multiply(q, _axis_quaternions(angles[..., i], _AXES[order[i]]))
+    if out is not None:
+        out[...] = q
+        return out
     return q
 
 
@@ -272,14 +330,11 @@ def _wrap(a: np.ndarray) -> np.ndarray:
     return (a + np.pi) % (2.0 * np.pi) - np.pi
 
 
-_TWO_PI = 2.0 * np.pi
-
-
 def _wrap_small(a: np.ndarray) -> np.ndarray:
     """_wrap for angles in [-pi, 2 pi] (bit for bit: there (a + pi) % 2pi is a + pi or a + pi - 2pi, and
     that subtraction is exact)."""
     y = a + np.pi
-    np.subtract(y, _TWO_PI, out=y, where=y >= _TWO_PI)
+    y -= (y >= _TWO_PI) * _TWO_PI  # subtracting 0.0 leaves every value as it is
     y -= np.pi
     return y
 
@@ -309,9 +364,6 @@ def _unwrap_small(p: np.ndarray) -> np.ndarray:
     flat_up = up.reshape(up.shape[0], -1)
     flat_up[1:, cols] = flat_p[1:, cols] + np.cumsum(correct, axis=0)
     return up
-
-
-_BLOCK = 1 << 17  # elements per work block: a block's temporaries stay small enough to be reused in cache
 
 
 def to_euler_continuous(q: np.ndarray, order: str, degrees: bool = False) -> np.ndarray:

@@ -210,24 +210,40 @@ def read_bvh(path: str | os.PathLike, fps: float | None = None) -> Motion:
     Raises BVHError naming the file and line for anything malformed.
     """
     path = str(path)
+    # Only the text up to the motion header is parsed in Python; numpy reads the numbers from the file
+    # itself. So read the head in pieces until the 'Frame Time' line and a little beyond.
     try:
         with open(path, "rb") as fh:
-            data = fh.read()
+            data = fh.read(1 << 16)
+            if b"\x00" in data[:4096]:
+                raise BVHError("not a BVH file: binary content", path=path)
+            while True:
+                k = data.find(b"Frame Time")
+                nl = data.find(b"\n", k) if k >= 0 else -1
+                if nl >= 0 and len(data) >= nl + 4096:
+                    break
+                more = fh.read(max(1 << 16, len(data)))
+                if not more:
+                    break
+                data += more
     except FileNotFoundError:
         raise BVHError("file not found", path=path) from None
     except IsADirectoryError:
         raise BVHError("is a folder, expected a BVH file", path=path) from None
     except OSError as exc:
         raise BVHError(f"cannot read: {exc.strerror}", path=path) from None
-    if b"\x00" in data[:4096]:
-        raise BVHError("not a BVH file: binary content", path=path)
-    # Only the text up to the motion header needs decoding; numpy reads the numbers from the file.
-    k = data.find(b"Frame Time")
-    nl = data.find(b"\n", k) if k >= 0 else -1
     if nl >= 0 and re.search(rb"\S", data[nl + 1: nl + 4096]) is not None:
         return parse_bvh(data[: nl + 1].decode("utf-8", errors="replace"), path=path, fps=fps,
-                         _from_file=True, _full=lambda: data.decode("utf-8", errors="replace"))
-    return parse_bvh(data.decode("utf-8", errors="replace"), path=path, fps=fps)
+                         _from_file=True, _full=lambda: _read_text(path))
+    return parse_bvh(_read_text(path), path=path, fps=fps)
+
+
+def _read_text(path: str) -> str:
+    try:
+        with open(path, "rb") as fh:
+            return fh.read().decode("utf-8", errors="replace")
+    except OSError as exc:
+        raise BVHError(f"cannot read: {exc.strerror}", path=path) from None
 
 
 def parse_bvh(text: str, path: str = "<string>", fps: float | None = None, _from_file: bool = False,
@@ -291,8 +307,10 @@ def parse_bvh(text: str, path: str = "<string>", fps: float | None = None, _from
         rows = 0
     else:
         try:
+            # At most one row more than declared: enough to tell that there are too many, and a known
+            # size lets numpy fill one array instead of growing it.
             values = np.loadtxt(body, dtype=np.float64, ndmin=2, comments=None,
-                                skiprows=body_start_line - 1 if _from_file else 0)
+                                skiprows=body_start_line - 1 if _from_file else 0, max_rows=declared + 1)
         except ValueError:
             _diagnose_rows(_body_text(text, _full, pos), body_start_line, ncols, path)
             raise BVHError("motion block could not be parsed", path=path, line=body_start_line) from None
@@ -305,18 +323,24 @@ def parse_bvh(text: str, path: str = "<string>", fps: float | None = None, _from
         if rows < declared:
             raise BVHError(f"motion block truncated: 'Frames: {declared}' declared, {rows} frame lines found",
                            path=path, line=header[0][1])
+        rows = sum(1 for line in _body_text(text, _full, pos).splitlines() if line.strip())
         raise BVHError(f"'Frames: {declared}' declared, but {rows} frame lines found", path=path,
                        line=header[0][1])
-    bad = ~np.isfinite(values)
-    if bad.any():
-        frame, col = np.argwhere(bad)[0]
-        raise BVHError(f"frame {frame}, channel {col}: value is not finite ({values[frame, col]})", path=path,
-                       line=body_start_line + int(frame))
+    # One pass without a temporary: a sum of finite values is finite unless it overflows.
+    if values.size and not np.isfinite(np.add.reduce(values, axis=None)):
+        bad = ~np.isfinite(values)
+        if bad.any():
+            frame, col = np.argwhere(bad)[0]
+            raise BVHError(f"frame {frame}, channel {col}: value is not finite ({values[frame, col]})",
+                           path=path, line=body_start_line + int(frame))
     return _to_motion(h, values, float(fps), path)
 
 
 def _body_text(text: str, full, pos: int) -> str:
     return (full() if full is not None else text)[pos:]
+
+
+_READ_BLOCK = 1 << 16  # rotations converted per block of frames while reading
 
 
 def _to_motion(h: _Hierarchy, values: np.ndarray, fps: float, path: str) -> Motion:
@@ -333,11 +357,12 @@ def _to_motion(h: _Hierarchy, values: np.ndarray, fps: float, path: str) -> Moti
         translations = np.broadcast_to(offsets, (f, n, 3)).copy()
     root_positions = np.broadcast_to(offsets[0], (f, 3)).copy()
     # Column of each channel, then one Euler conversion per distinct rotation order (all its joints at
-    # once), and position channels copied in place.
+    # once), in blocks of frames so the rows being read and written stay in the CPU cache; position
+    # channels copied in place.
     starts = np.concatenate([[0], np.cumsum([len(c) for c in h.channels])]).astype(int)
     groups: dict[str, tuple[list[int], list[list[int]]]] = {}
     for j, chans in enumerate(h.channels):
-        rot_cols = [starts[j] + k for k, c in enumerate(chans) if c in ROTATION_CHANNELS]
+        rot_cols = [int(starts[j]) + k for k, c in enumerate(chans) if c in ROTATION_CHANNELS]
         if rot_cols:
             order = "".join(c[0] for c in chans if c in ROTATION_CHANNELS)
             joints, cols = groups.setdefault(order, ([], []))
@@ -349,8 +374,41 @@ def _to_motion(h: _Hierarchy, values: np.ndarray, fps: float, path: str) -> Moti
         for k, c in enumerate(chans):
             if c in POSITION_CHANNELS and target is not None:
                 target[:, "XYZ".index(c[0])] = values[:, starts[j] + k]
+    # Per rotation order, runs of evenly spaced joints whose angle columns are evenly spaced too (every
+    # joint but the root on one order, or orders taking turns): their angles are read and their
+    # rotations written through strided views. Channels in another layout are gathered by index.
+    plan = []
     for order, (joints, cols) in groups.items():
-        rotations[:, joints] = quat.from_euler(values[:, np.array(cols)], order, degrees=True)
+        k = len(order)
+        runs: list[list[int]] = []  # [first joint, joint step, first column, column step, count]
+        for j, cs in zip(joints, cols):
+            if cs != list(range(cs[0], cs[0] + k)):
+                plan.append((order, [j], np.array([cs]), 1, k))
+                continue
+            run = runs[-1] if runs else None
+            if run is not None and run[4] == 1 and j > run[0] and cs[0] - run[2] >= k:
+                run[1], run[3], run[4] = j - run[0], cs[0] - run[2], 2
+            elif run is not None and j == run[0] + run[1] * run[4] and cs[0] == run[2] + run[3] * run[4]:
+                run[4] += 1
+            else:
+                runs.append([j, 1, cs[0], k, 1])
+        for j0, sj, c0, sc, count in runs:
+            plan.append((order, slice(j0, j0 + sj * (count - 1) + 1, sj), (c0, sc), count, k))
+    rotating = sum(len(js) for js, _ in groups.values())
+    step = max(1, _READ_BLOCK // max(rotating, 1))
+    values = np.ascontiguousarray(values)
+    row_bytes = values.strides[0]
+    for f0 in range(0, f, step):
+        rows = min(step, f - f0)
+        for order, jsel, csel, count, k in plan:
+            if isinstance(jsel, slice):
+                c0, sc = csel
+                angles = np.ndarray((rows, count, k), np.float64, values, f0 * row_bytes + c0 * 8,
+                                    (row_bytes, sc * 8, 8))
+                quat.from_euler(angles, order, degrees=True, out=rotations[f0: f0 + rows, jsel])
+            else:
+                rotations[f0: f0 + rows, jsel] = quat.from_euler(values[f0: f0 + rows, csel], order,
+                                                                 degrees=True)
     if translations is not None:
         translations[:, 0] = root_positions
     return Motion(skeleton, rotations, root_positions, fps, translations, source=path)
