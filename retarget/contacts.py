@@ -430,8 +430,8 @@ class _Feet:
     has_toe: np.ndarray
     leg_length: np.ndarray
     fps: float
-    grot: np.ndarray = field(repr=False)
-    gpos: np.ndarray = field(repr=False)
+    grot: "np.ndarray | _JointColumns" = field(repr=False)   # indexed [frames, joint]
+    gpos: "np.ndarray | _JointColumns" = field(repr=False)
     to_canonical: np.ndarray = field(repr=False)
     scale: float = 1.0
     rest_flat: np.ndarray = field(default=None, repr=False)  # type: ignore[assignment]
@@ -473,11 +473,44 @@ def _leg_length(skeleton, leg, scale: float) -> float:
     return float(length)
 
 
+class _JointColumns:
+    """Global transforms computed for some joints only, indexed like the full (F, J, n) array:
+    ``cols[frames, joint]``."""
+
+    def __init__(self, data: np.ndarray, joints: list[int]) -> None:
+        self.data = data
+        self.col = {j: i for i, j in enumerate(joints)}
+
+    def __getitem__(self, key):
+        frames, joint = key
+        return self.data[frames, self.col[int(joint)]]
+
+
+def _leg_transforms(motion, legs: dict, names: tuple[str, ...]) -> tuple[_JointColumns, _JointColumns]:
+    """Forward kinematics of the joints the legs need (their joints, toes and the parents of the three
+    leg joints, with their ancestors), not of the whole skeleton."""
+    from .motion import forward_kinematics
+
+    sk = motion.skeleton
+    need: list[int] = []
+    for name in names:
+        leg = legs[name]
+        for j in (leg.root, leg.mid, leg.end, leg.toe):
+            if j is None:
+                continue
+            for k in (int(j), int(sk.parents[j])):
+                if k >= 0 and k not in need:
+                    need.append(k)
+    grot, gpos = forward_kinematics(sk, motion.rotations, motion.root_positions, motion.translations,
+                                    joints=need)
+    return _JointColumns(grot, need), _JointColumns(gpos, need)
+
+
 def _feet(motion, legs: dict, convention, feet: tuple[str, ...] | None = None,
           transforms: tuple[np.ndarray, np.ndarray] | None = None) -> _Feet:
     sk = motion.skeleton
     names = _check_legs(sk, legs, feet)
-    grot, gpos = motion.global_transforms() if transforms is None else transforms
+    grot, gpos = _leg_transforms(motion, legs, names) if transforms is None else transforms
     c = np.asarray(convention.file_to_canonical(), dtype=np.float64)
     s = float(convention.scale)
 

@@ -105,30 +105,75 @@ class Motion:
         return forward_kinematics(self.skeleton, self.rotations, self.root_positions, self.translations)
 
 
+_FK_BLOCK = 256  # frames per block when transposing the local rotations
+
+
 def forward_kinematics(skeleton: Skeleton, rotations: np.ndarray, root_positions: np.ndarray,
-                       translations: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+                       translations: np.ndarray | None = None, joints=None) -> tuple[np.ndarray, np.ndarray]:
     """Global rotations and positions for every frame.
 
     rotations: (F, J, 4) local quaternions; root_positions: (F, 3); translations: (F, J, 3) or None
     (then each joint uses its rest offset). Returns (F, J, 4) and (F, J, 3) in the skeleton's space.
-    Loops over joints in topological order; every step is vectorised over frames.
+    joints: optional joint indices; then only they and their ancestors are computed and the results are
+    (F, len(joints), 4) and (F, len(joints), 3), one column per joint asked for, in that order.
+    Loops over joints in topological order; every step is vectorised over frames, on contiguous
+    per-component arrays (the results are views of joint-major, component-major arrays).
     """
     rotations = np.asarray(rotations, dtype=np.float64)
     f, n = rotations.shape[:2]
-    # Work joint-major so each joint's frames are contiguous.
-    local = np.ascontiguousarray(rotations.transpose(1, 0, 2))
-    grot = np.empty((n, f, 4))
-    gpos = np.empty((n, f, 3))
     parents = skeleton.parents
+    if joints is None:
+        wanted = list(range(n))
+        todo = wanted
+    else:
+        wanted = [int(j) for j in joints]
+        need: set[int] = set()
+        for j in wanted:
+            while j >= 0 and j not in need:
+                need.add(j)
+                j = int(parents[j])
+        todo = sorted(need)  # parents come before their children
+    slot = {j: i for i, j in enumerate(todo)}
+    # The local rotations of the joints needed, as contiguous (4, F) planes per joint; transposed in
+    # blocks of frames that stay in the CPU cache.
+    local = np.empty((len(todo), 4, f))
+    pick = slice(None) if len(todo) == n else todo
+    for f0 in range(0, f, _FK_BLOCK):
+        local[:, :, f0: f0 + _FK_BLOCK] = rotations[f0: f0 + _FK_BLOCK, pick].transpose(1, 2, 0)
+    grot = np.empty((len(todo), 4, f))
+    gpos = np.empty((len(todo), 3, f))
     offsets = skeleton.offsets
-    tr = None if translations is None else np.ascontiguousarray(np.asarray(translations).transpose(1, 0, 2))
-    for j in range(n):
-        p = parents[j]
+    root_positions = np.asarray(root_positions, dtype=np.float64)
+    for i, j in enumerate(todo):
+        p = int(parents[j])
         if p < 0:
-            grot[j] = local[j]
-            gpos[j] = root_positions
+            grot[i] = local[i]
+            gpos[i] = np.broadcast_to(root_positions, (f, 3)).T
             continue
-        grot[j] = quat.multiply(grot[p], local[j])
-        t = offsets[j] if tr is None else tr[j]
-        gpos[j] = gpos[p] + quat.rotate(grot[p], t)
-    return grot.transpose(1, 0, 2), gpos.transpose(1, 0, 2)
+        pr, pp = grot[slot[p]], gpos[slot[p]]
+        t = offsets[j] if translations is None else np.asarray(translations)[:, j].T
+        _fk_joint(pr, pp, local[i], t, grot[i], gpos[i])
+    if joints is not None and wanted != todo:
+        pick = [slot[j] for j in wanted]
+        grot, gpos = grot[pick], gpos[pick]
+    return grot.transpose(2, 0, 1), gpos.transpose(2, 0, 1)
+
+
+def _fk_joint(pr: np.ndarray, pp: np.ndarray, local: np.ndarray, t, out_r: np.ndarray, out_p: np.ndarray) -> None:
+    """One joint: global rotation = parent * local (quat.multiply's arithmetic), global position =
+    parent position + parent rotation applied to the offset t (quat.rotate's arithmetic).
+    pr (4, F), pp (3, F): the parent's; local (4, F); t: (3,) or (3, F); out_r (4, F), out_p (3, F)."""
+    ax, ay, az, aw = pr
+    bx, by, bz, bw = local
+    out_r[0] = aw * bx + ax * bw + ay * bz - az * by
+    out_r[1] = aw * by - ax * bz + ay * bw + az * bx
+    out_r[2] = aw * bz + ax * by - ay * bx + az * bw
+    out_r[3] = aw * bw - ax * bx - ay * by - az * bz
+    vx, vy, vz = t
+    # t2 = 2 (u x v); v + w t2 + u x t2, with u = the parent's vector part and w its scalar.
+    tx = 2.0 * (ay * vz - az * vy)
+    ty = 2.0 * (az * vx - ax * vz)
+    tz = 2.0 * (ax * vy - ay * vx)
+    out_p[0] = pp[0] + (vx + aw * tx + (ay * tz - az * ty))
+    out_p[1] = pp[1] + (vy + aw * ty + (az * tx - ax * tz))
+    out_p[2] = pp[2] + (vz + aw * tz + (ax * ty - ay * tx))
