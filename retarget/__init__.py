@@ -9,7 +9,7 @@ from . import quat
 from .chains import BodyLayout, Chain, Limb, analyze_body
 from .convention import Convention, detect_convention
 from .errors import (BVHError, GLTFError, MappingError, OptionError, RetargetError, SkeletonError)
-from .io import read_bvh, read_motion, write_bvh, write_motion
+from .io import read_bvh, read_gltf, read_motion, write_bvh, write_gltf, write_motion
 from .motion import Motion, forward_kinematics
 from .skeleton import Skeleton
 
@@ -22,12 +22,25 @@ __all__ = [
     "write_bvh",
     "read_motion",
     "write_motion",
+    "read_gltf",
+    "write_gltf",
     "Convention",
     "detect_convention",
     "BodyLayout",
     "Chain",
     "Limb",
     "analyze_body",
+    "ContactSettings",
+    "FootContacts",
+    "FootMetrics",
+    "ContactReport",
+    "detect_contacts",
+    "contacts_from_flags",
+    "carry_contacts",
+    "fix_contacts",
+    "plant_feet",
+    "measure_contacts",
+    "two_bone_ik",
     "RetargetError",
     "BVHError",
     "GLTFError",
@@ -36,3 +49,16 @@ __all__ = [
     "OptionError",
 ]
 __version__ = "0.1.0"
+
+# Names whose modules import pydantic or scipy load on first use, so the command line starts fast.
+_LAZY = {name: "contacts" for name in (
+    "ContactSettings", "FootContacts", "FootMetrics", "ContactReport", "detect_contacts",
+    "contacts_from_flags", "carry_contacts", "fix_contacts", "plant_feet", "measure_contacts", "two_bone_ik")}
+
+
+def __getattr__(name: str):
+    if name in _LAZY:
+        import importlib
+
+        return getattr(importlib.import_module(f".{_LAZY[name]}", __name__), name)
+    raise AttributeError(f"module 'retarget' has no attribute {name!r}")

@@ -110,6 +110,7 @@ def _short_channel(ch: str) -> str:
     return ch[0] + ("p" if ch.endswith("position") else "r")
 
 
+<<<<<<< HEAD
 @main.command("batch")
 @click.argument("inputs", nargs=-1, required=True)
 @click.option("--rig", required=True, type=click.Path(dir_okay=False), help="Character rig (BVH or glTF).")
@@ -184,6 +185,124 @@ def _run_with_progress(jobs, prior, out_dir, executor, workers, quiet, rig):
 
         return run_batch(jobs, out_dir, executor=executor, workers=workers, on_row=on_row, prior_rows=prior,
                          rig=rig)
+=======
+@main.command("contacts")
+@click.argument("clip", type=click.Path(dir_okay=False))
+@click.option("--json", "as_json", is_flag=True, help="Print the contacts as JSON.")
+@click.option("--fps", type=float, default=None, help="Override the file's frame rate.")
+@_axis_option("--up", "Override the detected up axis (+X, -Y, ...).")
+@_axis_option("--forward", "Override the detected forward axis.")
+@click.option("--unit-scale", type=float, default=None, metavar="M", help="Override metres per file unit.")
+@click.option("--width", type=click.IntRange(10, 400), default=72, show_default=True,
+              help="Columns of the timeline strip.")
+@_friendly
+def contacts_cmd(clip: str, as_json: bool, fps: float | None, up: str | None, forward: str | None,
+                 unit_scale: float | None, width: int) -> None:
+    """Find foot contacts on a clip: a timeline per foot, contact spans, support heights, foot skate."""
+    from .chains import analyze_body
+    from .contacts import detect_contacts, measure_contacts, summarize_contacts
+    from .convention import detect_convention, parse_axis
+    from .io import read_motion
+
+    up, forward = (parse_axis(a) if a else None for a in (up, forward))
+    motion = read_motion(clip, fps=fps)
+    body = analyze_body(motion.skeleton, motion)
+    conv = detect_convention(motion.skeleton, motion, body).with_overrides(up, forward, unit_scale)
+    found = detect_contacts(motion, body.legs, conv)
+    summary = summarize_contacts(found, measure_contacts(motion, body.legs, found, conv), file=clip)
+    if as_json:
+        click.echo(json.dumps(summary.model_dump(), indent=2))
+        return
+    click.echo(_format_contacts(summary, found.flags, width))
+
+
+def _strip(flags, width: int) -> str:
+    """A row of characters for a (F,) bool array: '#' planted throughout a column's frames, '+' for part
+    of them, '.' never."""
+    import numpy as np
+
+    n = len(flags)
+    cols = min(width, max(n, 1))
+    edges = np.linspace(0, n, cols + 1).round().astype(int)
+    out = []
+    for a, b in zip(edges[:-1], edges[1:]):
+        share = float(np.mean(flags[a:max(b, a + 1)])) if n else 0.0
+        out.append("#" if share >= 0.999 else "+" if share > 0 else ".")
+    return "".join(out)
+
+
+def _format_contacts(s, flags, width: int) -> str:
+    import math
+
+    duration = s.frames / s.fps if s.fps else 0.0
+    legs = ", ".join(f"{x:.2f}" for x in s.leg_length_m)
+    out = [f"{s.file}", "", f"{s.frames} frames at {s.fps:g} fps = {duration:.2f} s, leg length {legs} m"]
+    if s.ground_m is not None:
+        out.append(f"lowest support {s.ground_m * 100:+.1f} cm (canonical, up is +Y)")
+    out.append("")
+    label = max([len(f.foot) for f in s.feet] + [4])
+    cols = min(width, max(s.frames, 1))
+    ruler = [" "] * cols
+    step = max(1, math.ceil(duration / 8))
+    for t in range(0, int(duration) + 1, step):
+        c = int(round(t / duration * (cols - 1))) if duration > 0 else 0
+        mark = f"{t}s"
+        if c + len(mark) <= cols and all(ch == " " for ch in ruler[c:c + len(mark)]):
+            ruler[c:c + len(mark)] = list(mark)
+    out.append(" " * (label + 2) + "".join(ruler))
+    for i, f in enumerate(s.feet):
+        out.append(f"{f.foot:<{label}}  {_strip(flags[:, i], width)}")
+    out.append(" " * (label + 2) + "# planted  + partly  . in the air")
+    out.append("")
+    out.append(f"{'foot':<{label}}  contacts  frames  share  skate mL/frame  skate cm/s  weighted cm/s")
+    for f in s.feet:
+        ws = "-" if f.weighted_skate_cm_s is None else f"{f.weighted_skate_cm_s:.1f}"
+        out.append(f"{f.foot:<{label}}  {f.contacts:>8}  {f.contact_frames:>6}  {f.share * 100:4.0f}%  "
+                   f"{f.skate_leg_per_frame * 1000:>14.2f}  {f.skate_cm_s:>10.1f}  {ws:>13}")
+    out.append(f"skate: slide of the planted heel or toe (mL = thousandths of a leg length); weighted: "
+               f"speed x (2 - 2^(h/H)) below H = {s.skate_height_cm:g} cm, every frame")
+    for f in s.feet:
+        out.append("")
+        out.append(f"{f.foot}:")
+        for sp in f.spans:
+            out.append(f"  frames {sp.start:>5}-{sp.stop - 1:<5}  {sp.start_s:6.2f}-{sp.stop_s:<6.2f} s  "
+                       f"on {sp.support_m * 100:+6.1f} cm")
+        if not f.spans:
+            out.append("  no contact")
+    return "\n".join(out)
+
+
+@main.command("preview")
+@click.argument("clip", type=click.Path(dir_okay=False))
+@click.option("--rig", required=True, type=click.Path(dir_okay=False),
+              help="The character: a BVH file (its zero pose is the rest pose) or a glTF file.")
+@click.option("-m", "--mapping", default=None, type=click.Path(dir_okay=False),
+              help="Joint mapping file; proposed from the two skeletons when omitted.")
+@click.option("-o", "--output", required=True, type=click.Path(dir_okay=False),
+              help="The page to write (one self-contained HTML file).")
+@click.option("--plots", "plots_dir", default=None, type=click.Path(file_okay=False),
+              help="Also write PNG plots (feet, foot slide, pose fidelity) into this folder.")
+@_friendly
+def preview_cmd(clip: str, rig: str, mapping: str | None, output: str, plots_dir: str | None) -> None:
+    """Retarget CLIP onto RIG and write a page showing both side by side, with the clip's numbers."""
+    from pathlib import Path
+
+    from .io import read_motion
+    from .pipeline import retarget_clip
+    from .preview import contact_flags, mapping_pairs, plot_clip, report_numbers, write_preview
+
+    source = read_motion(clip)
+    result = retarget_clip(source, rig, mapping=mapping)
+    contacts = contact_flags(getattr(result, "contacts", None))
+    title = f"{Path(clip).name} \u2192 {Path(rig).name}"
+    write_preview(output, source, result.motion, contacts=contacts, numbers=report_numbers(result.report),
+                  title=title)
+    click.echo(f"wrote {output}")
+    if plots_dir:
+        for path in plot_clip(plots_dir, source, result.motion, contacts=contacts,
+                              pairs=mapping_pairs(result.mapping), stem=Path(clip).stem, title=title):
+            click.echo(f"wrote {path}")
+>>>>>>> main
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -51,3 +51,30 @@ def test_console_entry_starts_quickly_without_heavy_imports():
             "'scipy') if m in sys.modules]; print(heavy)")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True).stdout
     assert out.strip() == "[]"
+
+
+def test_contacts_prints_timeline_and_numbers():
+    take = Path(__file__).resolve().parents[1] / "demo_clips" / "capture" / "box_step.bvh"
+    r = CliRunner().invoke(main, ["contacts", str(take), "--width", "60"])
+    assert r.exit_code == 0, r.output
+    lines = r.output.splitlines()
+    strips = [line for line in lines if line.startswith(("left ", "right ")) and "%" not in line]
+    assert len(strips) == 2 and all(len(s.split()[1]) == 60 for s in strips)
+    assert set("".join(s.split()[1] for s in strips)) <= set("#+.")
+    assert "on  +30.9 cm" in r.output  # the box top (30 cm box, demo_clips/README.md) over a 0.9 cm floor
+
+
+def test_contacts_json_lists_spans_per_foot():
+    take = Path(__file__).resolve().parents[1] / "demo_clips" / "capture" / "walk.bvh"
+    r = CliRunner().invoke(main, ["contacts", str(take), "--json"])
+    data = json.loads(r.output)
+    assert [f["foot"] for f in data["feet"]] == ["left", "right"]
+    assert data["frames"] == 518 and data["fps"] == 120
+    left = data["feet"][0]
+    assert left["contacts"] == len(left["spans"]) and left["contact_frames"] == sum(
+        s["stop"] - s["start"] for s in left["spans"])
+
+
+def test_contacts_on_a_file_without_legs_is_one_line_exit_2():
+    r = CliRunner().invoke(main, ["contacts", str(DATA / "mixed.bvh")])
+    assert r.exit_code == 2 and r.output.count("\n") == 1 and "no legs" in r.output

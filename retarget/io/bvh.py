@@ -274,6 +274,10 @@ def parse_bvh(text: str, path: str = "<string>", fps: float | None = None, _from
             raise BVHError(f"Frame Time must be positive, found {ft_str!r} (pass fps to override)", path=path,
                            line=header[1][1])
         fps = 1.0 / frame_time
+        # Frame Time is usually printed with 6-8 digits (0.0333333): snap to a whole rate when within
+        # that rounding, so 30 fps reads as 30, not 30.00003.
+        if abs(fps - round(fps)) < 1e-5 * fps:
+            fps = float(round(fps))
     body = path if _from_file else io.StringIO(text[pos:])
     has_data = _from_file or re.compile(r"\S").search(text, pos) is not None
 
@@ -448,7 +452,7 @@ def format_bvh(motion: Motion) -> str:
     lines = _hierarchy_text(sk)
     lines.append("MOTION")
     lines.append(f"Frames: {motion.num_frames}")
-    lines.append(f"Frame Time: {1.0 / motion.fps:.8f}")
+    lines.append(f"Frame Time: {1.0 / motion.fps:.10g}")
     head = "\n".join(lines) + "\n"
     if values.size == 0:
         return head + "\n" * motion.num_frames
