@@ -110,82 +110,6 @@ def _short_channel(ch: str) -> str:
     return ch[0] + ("p" if ch.endswith("position") else "r")
 
 
-<<<<<<< HEAD
-@main.command("batch")
-@click.argument("inputs", nargs=-1, required=True)
-@click.option("--rig", required=True, type=click.Path(dir_okay=False), help="Character rig (BVH or glTF).")
-@click.option("-m", "--mapping", type=click.Path(dir_okay=False), default=None,
-              help="Reviewed mapping file; without it one is matched per source skeleton.")
-@click.option("-o", "--output", "out_dir", required=True, type=click.Path(file_okay=False),
-              help="Output folder; mirrors the input folders.")
-@click.option("--workers", type=int, default=None, help="Local worker processes (default: one per core).")
-@click.option("--cluster", default=None, metavar="ADDRESS",
-              help="Run on a dask.distributed scheduler, e.g. tcp://10.0.0.5:8786.")
-@click.option("--force", is_flag=True, help="Redo clips whose output is already up to date.")
-@click.option("--no-contact-fix", is_flag=True, help="Leave foot contacts as the transfer made them.")
-@click.option("--in-place", is_flag=True, help="Remove horizontal root travel.")
-@click.option("--format", "fmt", type=click.Choice(["bvh", "glb", "gltf"]), default=None,
-              help="Output format (default: the rig's).")
-@click.option("-q", "--quiet", is_flag=True, help="No progress bar; only the summary line.")
-@_friendly
-def batch_cmd(inputs, rig, mapping, out_dir, workers, cluster, force, no_contact_fix, in_place, fmt, quiet):
-    """Retarget every clip under INPUTS (folders or glob patterns) onto one rig."""
-    from .batch import plan_batch, run_batch
-
-    options = {"contact_fix": not no_contact_fix, "in_place": in_place}
-    jobs, prior = plan_batch(inputs, rig, out_dir, mapping=mapping, options=options, force=force,
-                             output_suffix=None if fmt is None else "." + fmt)
-    executor, client = None, None
-    if cluster:
-        from dask.distributed import Client
-
-        try:
-            client = Client(cluster, timeout="10s")
-        except (OSError, TimeoutError) as exc:
-            raise RetargetError(f"cannot reach the scheduler at {cluster}: {exc}") from None
-        executor = client.get_executor()
-    try:
-        report = _run_with_progress(jobs, prior, out_dir, executor, workers, quiet, rig)
-    except KeyboardInterrupt:
-        click.echo(f"interrupted: report written to {out_dir}; finished clips are kept", err=True)
-        sys.exit(130)
-    finally:
-        if client is not None:
-            client.close()
-    click.echo(f"{report.done} done, {report.skipped} up to date, {report.failed} failed"
-               f" ({report.clips} clips, {report.seconds:.1f} s); report: {out_dir}/batch_report.csv")
-    for row in report.rows:
-        if row.status == "failed":
-            click.echo(f"  failed  {row.clip}: {row.error}", err=True)
-    if report.failed:
-        sys.exit(1)
-
-
-def _run_with_progress(jobs, prior, out_dir, executor, workers, quiet, rig):
-    from .batch import run_batch
-
-    if quiet or not jobs:
-        return run_batch(jobs, out_dir, executor=executor, workers=workers, prior_rows=prior, rig=rig)
-    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
-
-    failed = 0
-    columns = [TextColumn("retargeting"), BarColumn(), MofNCompleteColumn(),
-               TextColumn("{task.fields[failed]} failed"), TextColumn("{task.fields[rate]}"),
-               TimeRemainingColumn()]
-    with Progress(*columns, transient=True) as bar:
-        task = bar.add_task("clips", total=len(jobs), failed=0, rate="")
-        start = time.perf_counter()
-
-        def on_row(row):
-            nonlocal failed
-            failed += row.status == "failed"
-            done = bar.tasks[0].completed + 1
-            rate = done / max(time.perf_counter() - start, 1e-9)
-            bar.update(task, advance=1, failed=failed, rate=f"{rate:.1f} clips/s")
-
-        return run_batch(jobs, out_dir, executor=executor, workers=workers, on_row=on_row, prior_rows=prior,
-                         rig=rig)
-=======
 @main.command("contacts")
 @click.argument("clip", type=click.Path(dir_okay=False))
 @click.option("--json", "as_json", is_flag=True, help="Print the contacts as JSON.")
@@ -302,7 +226,80 @@ def preview_cmd(clip: str, rig: str, mapping: str | None, output: str, plots_dir
         for path in plot_clip(plots_dir, source, result.motion, contacts=contacts,
                               pairs=mapping_pairs(result.mapping), stem=Path(clip).stem, title=title):
             click.echo(f"wrote {path}")
->>>>>>> main
+@main.command("batch")
+@click.argument("inputs", nargs=-1, required=True)
+@click.option("--rig", required=True, type=click.Path(dir_okay=False), help="Character rig (BVH or glTF).")
+@click.option("-m", "--mapping", type=click.Path(dir_okay=False), default=None,
+              help="Reviewed mapping file; without it one is matched per source skeleton.")
+@click.option("-o", "--output", "out_dir", required=True, type=click.Path(file_okay=False),
+              help="Output folder; mirrors the input folders.")
+@click.option("--workers", type=int, default=None, help="Local worker processes (default: one per core).")
+@click.option("--cluster", default=None, metavar="ADDRESS",
+              help="Run on a dask.distributed scheduler, e.g. tcp://10.0.0.5:8786.")
+@click.option("--force", is_flag=True, help="Redo clips whose output is already up to date.")
+@click.option("--no-contact-fix", is_flag=True, help="Leave foot contacts as the transfer made them.")
+@click.option("--in-place", is_flag=True, help="Remove horizontal root travel.")
+@click.option("--format", "fmt", type=click.Choice(["bvh", "glb", "gltf"]), default=None,
+              help="Output format (default: the rig's).")
+@click.option("-q", "--quiet", is_flag=True, help="No progress bar; only the summary line.")
+@_friendly
+def batch_cmd(inputs, rig, mapping, out_dir, workers, cluster, force, no_contact_fix, in_place, fmt, quiet):
+    """Retarget every clip under INPUTS (folders or glob patterns) onto one rig."""
+    from .batch import plan_batch, run_batch
+
+    options = {"contact_fix": not no_contact_fix, "in_place": in_place}
+    jobs, prior = plan_batch(inputs, rig, out_dir, mapping=mapping, options=options, force=force,
+                             output_suffix=None if fmt is None else "." + fmt)
+    executor, client = None, None
+    if cluster:
+        from dask.distributed import Client
+
+        try:
+            client = Client(cluster, timeout="10s")
+        except (OSError, TimeoutError) as exc:
+            raise RetargetError(f"cannot reach the scheduler at {cluster}: {exc}") from None
+        executor = client.get_executor()
+    try:
+        report = _run_with_progress(jobs, prior, out_dir, executor, workers, quiet, rig)
+    except KeyboardInterrupt:
+        click.echo(f"interrupted: report written to {out_dir}; finished clips are kept", err=True)
+        sys.exit(130)
+    finally:
+        if client is not None:
+            client.close()
+    click.echo(f"{report.done} done, {report.skipped} up to date, {report.failed} failed"
+               f" ({report.clips} clips, {report.seconds:.1f} s); report: {out_dir}/batch_report.csv")
+    for row in report.rows:
+        if row.status == "failed":
+            click.echo(f"  failed  {row.clip}: {row.error}", err=True)
+    if report.failed:
+        sys.exit(1)
+
+
+def _run_with_progress(jobs, prior, out_dir, executor, workers, quiet, rig):
+    from .batch import run_batch
+
+    if quiet or not jobs:
+        return run_batch(jobs, out_dir, executor=executor, workers=workers, prior_rows=prior, rig=rig)
+    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
+
+    failed = 0
+    columns = [TextColumn("retargeting"), BarColumn(), MofNCompleteColumn(),
+               TextColumn("{task.fields[failed]} failed"), TextColumn("{task.fields[rate]}"),
+               TimeRemainingColumn()]
+    with Progress(*columns, transient=True) as bar:
+        task = bar.add_task("clips", total=len(jobs), failed=0, rate="")
+        start = time.perf_counter()
+
+        def on_row(row):
+            nonlocal failed
+            failed += row.status == "failed"
+            done = bar.tasks[0].completed + 1
+            rate = done / max(time.perf_counter() - start, 1e-9)
+            bar.update(task, advance=1, failed=failed, rate=f"{rate:.1f} clips/s")
+
+        return run_batch(jobs, out_dir, executor=executor, workers=workers, on_row=on_row, prior_rows=prior,
+                         rig=rig)
 
 
 if __name__ == "__main__":  # pragma: no cover
