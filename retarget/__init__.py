@@ -10,6 +10,7 @@ from .chains import BodyLayout, Chain, Limb, analyze_body
 from .convention import Convention, detect_convention
 from .errors import (BVHError, GLTFError, MappingError, OptionError, RetargetError, SkeletonError)
 from .io import read_bvh, read_gltf, read_motion, write_bvh, write_gltf, write_motion
+from .match import match
 from .motion import Motion, forward_kinematics
 from .skeleton import Skeleton
 
@@ -30,6 +31,12 @@ __all__ = [
     "Chain",
     "Limb",
     "analyze_body",
+    "match",
+    "Mapping",
+    "JointPair",
+    "UnmappedJoint",
+    "load_mapping",
+    "save_mapping",
     "ContactSettings",
     "FootContacts",
     "FootMetrics",
@@ -47,6 +54,10 @@ __all__ = [
     "SkeletonError",
     "MappingError",
     "OptionError",
+    "retarget_clip",
+    "Result",
+    "RetargetReport",
+    "RetargetOptions",
 ]
 __version__ = "0.1.0"
 
@@ -54,6 +65,8 @@ __version__ = "0.1.0"
 _LAZY = {name: "contacts" for name in (
     "ContactSettings", "FootContacts", "FootMetrics", "ContactReport", "detect_contacts",
     "contacts_from_flags", "carry_contacts", "fix_contacts", "plant_feet", "measure_contacts", "two_bone_ik")}
+_LAZY.update({name: "pipeline" for name in ("retarget_clip", "Result", "RetargetReport", "RetargetOptions")})
+_LAZY.update({name: "mapping" for name in ("Mapping", "JointPair", "UnmappedJoint", "load_mapping", "save_mapping")})
 
 
 def __getattr__(name: str):

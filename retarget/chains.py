@@ -16,10 +16,10 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from .errors import SkeletonError
-from .names import side_of_name, strip_side, tokenize
+from .names import concepts_of, side_of_name, strip_side
 from .skeleton import Skeleton
 
-__all__ = ["Chain", "Limb", "BodyLayout", "analyze_body", "reference_pose"]
+__all__ = ["Chain", "Limb", "BodyLayout", "analyze_body", "reference_pose", "still_joints"]
 
 LEFT, RIGHT, CENTRE = "left", "right", "centre"
 
@@ -45,6 +45,7 @@ class Limb:
     joints: the whole chain from where it leaves the torso to its end.
     root: the joint that starts the upper segment (shoulder / hip), mid: elbow / knee, end: wrist / ankle,
     toe: the joint after the ankle on a leg, when there is one; clavicle: joints of the chain before root.
+    certainty: in [0, 1], how clearly the roles stood out from the next best reading of the chain.
     """
 
     side: str
@@ -53,6 +54,7 @@ class Limb:
     mid: int
     end: int
     toe: int | None = None
+    certainty: float = 1.0
 
     @property
     def lead(self) -> tuple[int, ...]:
@@ -68,6 +70,7 @@ class BodyLayout:
     is degenerate); tips: (J, 3) end-site positions in that pose (NaN where none).
     up: (3,) unit vector from the feet towards the head in that pose; forward: (3,) unit vector the figure
     faces (None when nothing tells); side_evidence: "names", "geometry" or "none".
+    still: (J,) bool, joints the clip never moves (None without a clip of two or more frames).
     """
 
     pelvis: int
@@ -84,6 +87,7 @@ class BodyLayout:
     up: np.ndarray = field(default=None, repr=False)  # type: ignore[assignment]
     forward: np.ndarray | None = field(default=None, repr=False)
     side_evidence: str = "none"
+    still: np.ndarray | None = field(default=None, repr=False)
 
     def chain_of(self, j: int) -> Chain | None:
         for c in self.chains:
@@ -149,10 +153,14 @@ def _reach(skeleton: Skeleton) -> tuple[np.ndarray, np.ndarray]:
     return depth, size
 
 
-def _geometric_reach(skeleton: Skeleton, pos: np.ndarray) -> np.ndarray:
-    """Per joint: length of the longest path from it down to a leaf, in the reference pose."""
+def _geometric_reach(skeleton: Skeleton, pos: np.ndarray, tips: np.ndarray | None = None) -> np.ndarray:
+    """Per joint: length of the longest path from it down to a leaf or end-site tip, in the reference
+    pose."""
     n = skeleton.num_joints
     out = np.zeros(n)
+    if tips is not None:
+        has = ~np.isnan(tips).any(axis=1)
+        out[has] = np.linalg.norm(tips[has] - pos[has], axis=1)
     for j in range(n - 1, 0, -1):
         p = skeleton.parents[j]
         out[p] = max(out[p], out[j] + np.linalg.norm(pos[j] - pos[p]))
@@ -160,18 +168,24 @@ def _geometric_reach(skeleton: Skeleton, pos: np.ndarray) -> np.ndarray:
 
 
 def _main_path(skeleton: Skeleton, start: int, depth: np.ndarray, geo: np.ndarray,
-               stop_at_split: bool) -> list[int]:
-    """Follow the dominant child from ``start``: the one reaching furthest (joints, then length).
+               stop_at_split: bool, pos: np.ndarray | None = None) -> list[int]:
+    """Follow the dominant child from ``start``: the one reaching furthest (joints, then length, the
+    bone to the child included, then name so the choice never depends on sibling order).
 
     With stop_at_split, stop at a joint whose two best children reach equally far (a hand with fingers,
     a head with two eyes)."""
     path = [start]
     j = start
+    names = skeleton.names
     while skeleton.children[j]:
-        kids = sorted(skeleton.children[j], key=lambda c: (depth[c], geo[c]), reverse=True)
+        if pos is not None:
+            reach = {c: geo[c] + float(np.linalg.norm(pos[c] - pos[j])) for c in skeleton.children[j]}
+        else:
+            reach = {c: geo[c] for c in skeleton.children[j]}
+        kids = sorted(skeleton.children[j], key=lambda c: (depth[c], round(reach[c], 9), names[c]), reverse=True)
         if stop_at_split and len(kids) >= 2 and depth[kids[0]] == depth[kids[1]] and depth[kids[0]] >= 1:
             # Equal reach: fingers or eyes. Continue only if one clearly dominates in length.
-            if geo[kids[1]] > 0.6 * geo[kids[0]]:
+            if reach[kids[1]] > 0.6 * reach[kids[0]]:
                 break
         j = kids[0]
         path.append(j)
@@ -204,18 +218,137 @@ def _best_pair(skeleton: Skeleton, cands: list[int], depth, size, geo, pos, cent
     return best
 
 
-def _limb_roles(chain: list[int], pos: np.ndarray, kind: str, skeleton: Skeleton) -> tuple[int, int, int, int | None]:
-    """root, mid, end (and toe for legs): the two longest consecutive bones are the upper and lower
-    segment."""
-    seg = np.array([np.linalg.norm(pos[chain[k + 1]] - pos[chain[k]]) for k in range(len(chain) - 1)])
-    if len(chain) < 3:
+# Anatomical proportions used to read a limb (Winter's table of Drillis and Contini segment lengths,
+# recalled from memory): upper arm 0.186 H, forearm 0.146 H, hand 0.108 H; thigh 0.245 H, shank 0.246 H,
+# foot 0.152 H long of which about 0.11 H lies ahead of the ankle.
+_UPPER_SHARE = {"arm": 0.186 / (0.186 + 0.146), "leg": 0.245 / (0.245 + 0.246)}
+_END_REACH = {"arm": 0.108 / 0.146, "leg": 0.11 / 0.246}
+_ROLE_NAMES = {"arm": ("upperarm", "forearm", "hand"), "leg": ("thigh", "shin", "foot")}
+
+
+def _name_cost(concepts: frozenset, role: str) -> float:
+    """Cost of giving a joint with these name concepts the anatomical role; 0 when the name is silent."""
+    from .names import FINGER_CONCEPTS
+
+    if not concepts:
+        return 0.0
+    if "end" in concepts:
+        return 3.0
+    if "twist" in concepts:
+        return 2.0
+    part = concepts - {"twist", "end"}
+    if role in part:
+        return -2.0 if len(part) == 1 else -1.0
+    if part & ({"clavicle", "buttock", "finger", "root", "pelvis", "spine", "chest"} | set(FINGER_CONCEPTS)
+               | set(_ROLE_NAMES["arm"]) | set(_ROLE_NAMES["leg"]) | {"toe"}):
+        return 3.0
+    return 0.0
+
+
+def _limb_roles(chain: list[int], pos: np.ndarray, kind: str, skeleton: Skeleton,
+                reach: np.ndarray | None = None, still: np.ndarray | None = None
+                ) -> tuple[int, int, int, int | None, float]:
+    """root, mid, end (and toe for legs) of a limb chain, and how clearly they stood out.
+
+    Every (root, mid, end) along the chain is scored; the reading with the lowest cost wins:
+    - the upper segment's share of the two (0.56 for arms, 0.50 for legs, Winter's table), and the two
+      segments covering most of the chain (so a clavicle or buttock stays out front);
+    - joints inside a segment must lie on its line (inline twist joints do, a bent lead bone does not);
+    - no role on a joint whose bone to the next chain joint has zero length (the co-located joint after
+      it carries that bone) or on a joint the clip never moves;
+    - what lies beyond the end (hand and fingers, the foot ahead of the ankle) against its share;
+    - names, when they speak (upper arm / forearm / hand, thigh / shin / foot; twist and end markers
+      take no role).
+    """
+    from .names import concepts_of
+
+    n = len(chain)
+    if n < 3:
         raise SkeletonError(f"the {kind} starting at {skeleton.names[chain[0]]!r} has fewer than 3 joints",
                             path=skeleton.source)
-    pair = seg[:-1] + seg[1:]
-    k = int(np.argmax(pair)) if len(pair) else 0
-    root, mid, end = chain[k], chain[k + 1], chain[k + 2]
-    toe = chain[k + 3] if kind == "leg" and k + 3 < len(chain) else None
-    return root, mid, end, toe
+    p = pos[list(chain)]
+    seg = np.linalg.norm(np.diff(p, axis=0), axis=1)
+    cum = np.concatenate([[0.0], np.cumsum(seg)])
+    total = max(float(cum[-1]), 1e-12)
+    tol = 1e-4 * total
+    share0, reach0 = _UPPER_SHARE[kind], _END_REACH[kind]
+    concepts = [concepts_of(skeleton.names[q]) for q in chain]
+    names_cost = [[_name_cost(c, r) for r in _ROLE_NAMES[kind]] for c in concepts]
+    moving = None
+    if still is not None:
+        st = np.asarray(still)[list(chain)]
+        if not st.all():
+            moving = ~st
+    # dev[a, b, q]: distance of joint q from the line through joints a and b, over the arc length a..b.
+    d = p[None, :, :] - p[:, None, :]                                   # d[a, b] = p[b] - p[a]
+    dd = np.einsum("abk,abk->ab", d, d)
+    w = p[None, None, :, :] - p[:, None, None, :]                       # w[a, q] = p[q] - p[a]
+    t = np.einsum("abk,aqk->abq", d, w[:, 0]) / np.where(dd > 1e-24, dd, 1.0)[:, :, None]
+    perp = w[:, 0][:, None, :, :] - t[..., None] * d[:, :, None, :]
+    arc = np.maximum(cum[None, :] - cum[:, None], 1e-12)
+    dev = (np.linalg.norm(perp, axis=-1) / arc[:, :, None]).tolist()
+    cost_of_dev = [[[3.0 * min(max((v - 0.02) / 0.04, 0.0), 1.0) for v in row] for row in plane]
+                   for plane in dev]
+
+    def straight_cost(a: int, b: int) -> float:
+        return sum(cost_of_dev[a][b][q] for q in range(a + 1, b))
+
+    segl = seg.tolist()
+    cuml = cum.tolist()
+    import math
+
+    scored = []
+    for i in range(n - 2):
+        for j in range(i + 1, n - 1):
+            l1 = cuml[j] - cuml[i]
+            if l1 <= tol:
+                continue
+            for k in range(j + 1, n):
+                l2 = cuml[k] - cuml[j]
+                if l2 <= tol:
+                    continue
+                cost = ((l1 / (l1 + l2) - share0) / 0.1) ** 2 - 2.0 * (l1 + l2) / total
+                cost += straight_cost(i, j) + straight_cost(j, k)
+                for role, q in enumerate((i, j, k)):
+                    if q + 1 < n and segl[q] <= tol:
+                        cost += 5.0
+                    if moving is not None and not moving[q]:
+                        cost += 4.0
+                    cost += names_cost[q][role]
+                after = float(reach[chain[k]]) if reach is not None else 0.0
+                if after > tol:
+                    cost += 0.5 * math.log(after / l2 / reach0) ** 2
+                else:
+                    cost += 0.5
+                scored.append((cost, i, j, k))
+    if not scored:
+        raise SkeletonError(f"the {kind} starting at {skeleton.names[chain[0]]!r} has no two bones of any "
+                            "length", path=skeleton.source)
+    scored.sort(key=lambda t: (t[0], t[1], t[2], t[3]))
+    best = scored[0]
+    margin = scored[1][0] - best[0] if len(scored) > 1 else 10.0
+    _, i, j, k = best
+    root, mid, end = chain[i], chain[j], chain[k]
+    toe = None
+    if kind == "leg" and k + 1 < n:
+        c = concepts[k + 1]
+        if not ("end" in c and "toe" not in c):
+            toe = chain[k + 1]
+    return root, mid, end, toe, float(1.0 - np.exp(-max(margin, 0.0)))
+
+
+def still_joints(motion) -> np.ndarray | None:
+    """(J,) bool: joints whose local rotation (and translation) never change over the clip; None when the
+    clip has fewer than two frames. A rotation and its negated quaternion count as the same."""
+    if motion is None or motion.num_frames < 2:
+        return None
+    rot = motion.rotations
+    dots = np.abs(np.einsum("fjk,jk->fj", rot, rot[0]))
+    still = dots.min(axis=0) >= 1.0 - 1e-12
+    if motion.translations is not None:
+        still &= np.all(np.abs(motion.translations - motion.translations[:1]) <= 1e-9, axis=(0, 2))
+    still[0] &= bool(np.all(np.abs(motion.root_positions - motion.root_positions[:1]) <= 1e-9))
+    return still
 
 
 def _collect_rest(skeleton: Skeleton, assigned: dict[int, tuple[str, str]], hands: set[int]) -> list[Chain]:
@@ -260,7 +393,8 @@ def analyze_body(skeleton: Skeleton, motion=None) -> BodyLayout:
     """
     pos, tips, ref = reference_pose(skeleton, motion)
     depth, size = _reach(skeleton)
-    geo = _geometric_reach(skeleton, pos)
+    geo = _geometric_reach(skeleton, pos, tips)
+    still = still_joints(motion)
     names = skeleton.names
     kids = skeleton.children
 
@@ -325,16 +459,23 @@ def analyze_body(skeleton: Skeleton, motion=None) -> BodyLayout:
     neck: list[int] = []
     head = None
     if rest_kids:
-        nk = max(rest_kids, key=lambda c: (depth[c], geo[c]))
-        neck = _main_path(skeleton, nk, depth, geo, stop_at_split=True)
-        named = [q for q in neck if "head" in tokenize(names[q]) and not {"top", "end", "nub"} & set(tokenize(names[q]))]
-        head = named[-1] if named else neck[-1]
+        nk = max(rest_kids, key=lambda c: (depth[c], geo[c] + float(np.linalg.norm(pos[c] - pos[chest])),
+                                           names[c]))
+        neck = _main_path(skeleton, nk, depth, geo, stop_at_split=True, pos=pos)
+        named = [q for q in neck if "head" in concepts_of(names[q]) and "end" not in concepts_of(names[q])]
+        if named:
+            head = named[-1]
+        elif len(neck) >= 2 and ("end" in concepts_of(names[neck[-1]]) or (
+                still is not None and still[neck[-1]] and not still[neck[-2]] and not kids[neck[-1]])):
+            head = neck[-2]  # an end marker above the head, or a leaf the clip never moves
+        else:
+            head = neck[-1]
         neck = neck[: neck.index(head) + 1]
 
     # 4. Limbs with their roles.
     def limb(start: int, kind: str) -> tuple[list[int], tuple]:
-        chain = _main_path(skeleton, start, depth, geo, stop_at_split=True)
-        return chain, _limb_roles(chain, pos, kind, skeleton)
+        chain = _main_path(skeleton, start, depth, geo, stop_at_split=True, pos=pos)
+        return chain, _limb_roles(chain, pos, kind, skeleton, geo, still)
 
     legs_raw = [limb(s, "leg") for s in leg_starts]
     arms_raw = [limb(s, "arm") for s in arm_starts]
@@ -372,10 +513,13 @@ def analyze_body(skeleton: Skeleton, motion=None) -> BodyLayout:
         if len(set(leg_sides)) < 2 or len(set(arm_sides)) < 2:
             evidence = "none"
     if evidence == "none":
+        # Nothing tells: a fixed order (by name) so the answer at least never depends on sibling order.
+        legs_raw.sort(key=lambda cr: names[cr[0][0]])
+        arms_raw.sort(key=lambda cr: names[cr[0][0]])
         leg_sides, arm_sides = [LEFT, RIGHT], [LEFT, RIGHT]
 
     legs = {s: Limb(s, tuple(c), *r) for s, (c, r) in zip(leg_sides, legs_raw)}
-    arms = {s: Limb(s, tuple(c), r[0], r[1], r[2]) for s, (c, r) in zip(arm_sides, arms_raw)}
+    arms = {s: Limb(s, tuple(c), r[0], r[1], r[2], None, r[4]) for s, (c, r) in zip(arm_sides, arms_raw)}
 
     # 7. Chains for everything.
     assigned: dict[int, tuple[str, str]] = {}
@@ -395,7 +539,7 @@ def analyze_body(skeleton: Skeleton, motion=None) -> BodyLayout:
     hands = {arms[LEFT].end, arms[RIGHT].end} | {arms[s].joints[-1] for s in (LEFT, RIGHT)}
     chains.extend(_collect_rest(skeleton, assigned, hands))
     return BodyLayout(pelvis, chest, tuple(spine), tuple(neck), head, arms, legs, tuple(chains),
-                      pos, tips, ref, up, forward, evidence)
+                      pos, tips, ref, up, forward, evidence, still)
 
 
 def _side_vector(legs_raw, arms_raw, leg_sides, arm_sides, pos) -> np.ndarray:
@@ -408,7 +552,7 @@ def _side_vector(legs_raw, arms_raw, leg_sides, arm_sides, pos) -> np.ndarray:
 def _foot_forward(legs_raw, pos, tips, up, skeleton) -> np.ndarray | None:
     """Direction the toes point, from ankle to toe joint or end site, flattened onto the ground."""
     acc = np.zeros(3)
-    for chain, (root, mid, end, toe) in legs_raw:
+    for chain, (root, mid, end, toe, _) in legs_raw:
         if toe is not None:
             d = pos[toe] - pos[end]
             if np.linalg.norm(d) < 1e-9 and not np.isnan(tips[toe]).any():

@@ -110,6 +110,60 @@ def _short_channel(ch: str) -> str:
     return ch[0] + ("p" if ch.endswith("position") else "r")
 
 
+@main.command("match")
+@click.argument("source", type=click.Path(dir_okay=False))
+@click.argument("target", type=click.Path(dir_okay=False))
+@click.option("-o", "--output", type=click.Path(dir_okay=False), default=None, metavar="MAPPING.yaml",
+              help="Write the proposed mapping here (YAML, to review and edit).")
+@click.option("--json", "as_json", is_flag=True, help="Print the mapping as JSON instead of a table.")
+@_friendly
+def match_cmd(source: str, target: str, output: str | None, as_json: bool) -> None:
+    """Propose which TARGET joint each SOURCE joint drives, with confidence and reasons."""
+    from .io import read_motion
+    from .mapping import save_mapping
+    from .match import match
+
+    src = read_motion(source)
+    tgt = read_motion(target)
+    mapping = match(src.skeleton, tgt.skeleton, src, tgt)
+    if output:
+        save_mapping(mapping, output)
+    if as_json:
+        click.echo(json.dumps(mapping.model_dump(), indent=2))
+        return
+    click.echo(_format_mapping_table(mapping, output))
+
+
+def _format_mapping_table(m, output: str | None) -> str:
+    from .mapping import LOW_CONFIDENCE
+
+    low = sum(p.confidence < LOW_CONFIDENCE for p in m.pairs)
+    un_s = [u for u in m.unmapped if u.side == "source"]
+    un_t = [u for u in m.unmapped if u.side == "target"]
+    out = [f"{m.source_file or 'source'}  ->  {m.target_file or 'target'}",
+           f"{len(m.pairs)} pairs ({low} below {LOW_CONFIDENCE:g}, marked !); unmapped: {len(un_s)} source, "
+           f"{len(un_t)} target joints", ""]
+    ws = max([len("source joint")] + [len(p.source) for p in m.pairs])
+    wt = max([len("target joint")] + [len(p.target) for p in m.pairs])
+    out.append(f"  {'source joint':<{ws}}  {'target joint':<{wt}}  sure  why")
+    for p in m.pairs:
+        line = f"{'!' if p.confidence < LOW_CONFIDENCE else ' '} {p.source:<{ws}}  {p.target:<{wt}}  " \
+               f"{p.confidence:.2f}  {p.reason}"
+        out.append(click.style(line, fg="yellow", bold=True) if p.confidence < LOW_CONFIDENCE else line)
+    for title, group in (("source", un_s), ("target", un_t)):
+        if not group:
+            continue
+        out.append("")
+        out.append(f"unmapped in the {title} ({len(group)})")
+        w = max(len(u.joint) for u in group)
+        for u in group:
+            out.append(f"  {u.joint:<{w}}  {u.reason}")
+    if output:
+        out.append("")
+        out.append(f"mapping written to {output}")
+    return "\n".join(out)
+
+
 @main.command("contacts")
 @click.argument("clip", type=click.Path(dir_okay=False))
 @click.option("--json", "as_json", is_flag=True, help="Print the contacts as JSON.")
@@ -300,6 +354,103 @@ def _run_with_progress(jobs, prior, out_dir, executor, workers, quiet, rig):
 
         return run_batch(jobs, out_dir, executor=executor, workers=workers, on_row=on_row, prior_rows=prior,
                          rig=rig)
+
+
+def _frame_range(text: str | None) -> tuple[int | None, int | None] | None:
+    """"START:END" (0-based, END excluded, either may be empty) -> (start, end)."""
+    from .errors import OptionError
+
+    if text is None:
+        return None
+    head, sep, tail = text.partition(":")
+    try:
+        if not sep:
+            raise ValueError
+        return (int(head) if head.strip() else None, int(tail) if tail.strip() else None)
+    except ValueError:
+        raise OptionError(f"--frames expects START:END (whole numbers, either may be left out), got {text!r}") \
+            from None
+
+
+@main.command("apply")
+@click.argument("clip", type=click.Path(dir_okay=False))
+@click.option("--rig", required=True, type=click.Path(dir_okay=False),
+              help="Character rig (BVH; its zero pose is the rest pose).")
+@click.option("-m", "--mapping", default=None, type=click.Path(dir_okay=False),
+              help="Joint mapping file; matched automatically when left out.")
+@click.option("--no-contact-fix", is_flag=True, help="Leave foot contacts as the transfer makes them.")
+@click.option("-o", "--output", required=True, type=click.Path(dir_okay=False), help="Output clip (.bvh).")
+@click.option("--in-place", is_flag=True, help="Take the horizontal root travel out.")
+@click.option("--root-scale", type=float, default=None, metavar="K",
+              help="Rig metres per source metre for root motion (default: leg-length ratio).")
+@_axis_option("--source-up", "Override the clip's detected up axis (+X, -Y, ...).")
+@_axis_option("--source-forward", "Override the clip's detected forward axis.")
+@click.option("--source-unit-scale", type=float, default=None, metavar="M", help="Metres per clip unit.")
+@click.option("--source-fps", type=float, default=None, help="Override the clip's frame rate.")
+@_axis_option("--rig-up", "Override the rig's detected up axis.")
+@_axis_option("--rig-forward", "Override the rig's detected forward axis.")
+@click.option("--rig-unit-scale", type=float, default=None, metavar="M", help="Metres per rig unit.")
+@click.option("--frames", "frame_range", default=None, metavar="START:END",
+              help="Only these source frames (0-based, END excluded).")
+@click.option("--fps", type=float, default=None, help="Resample the output to this frame rate.")
+@click.option("--report", "report_path", default=None, type=click.Path(dir_okay=False),
+              help="Also write the full report as JSON.")
+@_friendly
+def apply_cmd(clip: str, rig: str, mapping: str | None, no_contact_fix: bool, output: str, in_place: bool,
+              root_scale: float | None, source_up: str | None, source_forward: str | None,
+              source_unit_scale: float | None, source_fps: float | None, rig_up: str | None,
+              rig_forward: str | None, rig_unit_scale: float | None, frame_range: str | None,
+              fps: float | None, report_path: str | None) -> None:
+    """Put one capture CLIP onto a character RIG and write the result to OUTPUT."""
+    from .io import atomic_write, read_motion, write_motion
+    from .pipeline import retarget_clip
+
+    frames = _frame_range(frame_range)
+    source = read_motion(clip, fps=source_fps)
+    result = retarget_clip(source, rig, mapping, in_place=in_place, root_scale=root_scale,
+                           source_up=source_up, source_forward=source_forward,
+                           source_unit_scale=source_unit_scale, rig_up=rig_up, rig_forward=rig_forward,
+                           rig_unit_scale=rig_unit_scale, frames=frames, fps=fps,
+                           contact_fix=not no_contact_fix)
+    from pathlib import Path
+
+    template = rig if Path(rig).suffix.lower() in (".gltf", ".glb") else None  # keeps the rig's mesh and skin
+    Path(output).parent.mkdir(parents=True, exist_ok=True)
+    write_motion(output, result.motion, template=template)
+    if report_path:
+        atomic_write(report_path, (json.dumps(result.report.model_dump(), indent=2) + "\n").encode())
+    click.echo(_format_apply(result.report, output))
+
+
+def _format_apply(r, output: str) -> str:
+    out = [f"wrote {output}: {r.frames} frames at {r.fps:g} fps, {r.target.joints} joints "
+           f"({r.pairs} mapped from {r.source.joints})"]
+    worst = max(r.joints, key=lambda j: j.aim_correction_max_deg, default=None)
+    if r.direction_error_mean_deg is not None:
+        out.append(f"pose fidelity: bone spans {r.direction_error_mean_deg:.2f} deg from the source on "
+                   f"average, {r.direction_error_max_deg:.2f} deg at worst")
+    if worst is not None:
+        out.append(f"aim correction: up to {worst.aim_correction_max_deg:.1f} deg ({worst.target})")
+    bent = max((j for j in r.joints if j.between_bend_max_deg is not None),
+               key=lambda j: j.between_bend_max_deg, default=None)
+    if bent is not None:
+        out.append(f"unmapped joints bent to aim: up to {bent.between_bend_max_deg:.1f} deg "
+                   f"(between {bent.target} and {bent.span_end})")
+    out.append(f"root motion: scale {r.root_scale:.3f}, ground offset {100 * r.ground_offset_m:+.1f} cm"
+               + (", in place" if r.in_place else ""))
+    out.append(f"foot contacts: {r.contact_fix}")
+    if r.contacts is not None:
+        for f in r.contacts.feet:
+            line = (f"  {f.foot:<6} {f.contacts} contacts, {f.contact_frames} frames; slide "
+                    f"{f.skate_before_cm_s:.2f} cm/s")
+            if f.skate_after_cm_s is not None:
+                line += f" -> {f.skate_after_cm_s:.2f} cm/s"
+            line += f", sinks {f.penetration_before_cm:.2f} cm"
+            if f.penetration_after_cm is not None:
+                line += f" -> {f.penetration_after_cm:.2f} cm"
+            out.append(line)
+    out.extend(f"warning: {w}" for w in r.warnings)
+    return "\n".join(out)
 
 
 if __name__ == "__main__":  # pragma: no cover

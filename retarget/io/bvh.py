@@ -431,7 +431,8 @@ def _channel_values(motion: Motion) -> np.ndarray:
         if rot_cols:
             order = "".join(chans[k][0] for k in rot_cols)
             if len(order) == 3:
-                block[:, rot_cols] = quat.to_euler_continuous(motion.rotations[:, j], order, degrees=True)
+                block[:, rot_cols] = quat.to_euler_continuous(np.ascontiguousarray(motion.rotations[:, j]),
+                                                              order, degrees=True)
             else:
                 raise BVHError(f"joint {sk.names[j]!r}: writing needs three rotation channels, has {order!r}")
         for k, c in enumerate(chans):
