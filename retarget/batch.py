@@ -21,7 +21,7 @@ from typing import Any, Callable, Iterable
 
 from pydantic import BaseModel
 
-from .errors import OptionError, RetargetError
+from .errors import MappingError, OptionError, RetargetError
 from .io.atomic import atomic_write
 
 __all__ = ["ClipJob", "ClipRow", "BatchReport", "find_clips", "plan_batch", "run_batch", "write_batch_report",
@@ -38,15 +38,15 @@ _HASH_VERSION = "1"
 class ClipJob:
     """One clip to retarget: everything a worker needs, picklable.
 
-    mapping_text: the YAML of the mapping to use (shared by every clip of one source skeleton), or None
-    to let the worker match on its own (a clip whose skeleton differs from the group's).
+    mapping: the Mapping to use (shared by every clip of one source skeleton), or None to let the worker
+    match on its own (a clip whose skeleton the given mapping does not fit).
     """
 
     clip: str
     relative: str
     output: str
     rig: str
-    mapping_text: str | None
+    mapping: Any
     options: dict
     input_hash: str
     mapping_note: str = ""
@@ -124,6 +124,26 @@ def _glob_root(pattern: str) -> Path:
     return Path(*root) if root else Path(".")
 
 
+def _made_for(mapping_text: str, skeleton) -> bool:
+    """Whether a mapping file names this skeleton as its source (by hierarchy signature, or by joint
+    names when the file carries no signature)."""
+    import yaml
+
+    from .mapping import hierarchy_signature
+
+    try:
+        data = yaml.safe_load(mapping_text)
+    except yaml.YAMLError:
+        return True
+    if not isinstance(data, dict):
+        return True
+    sig = data.get("source_signature")
+    if sig:
+        return sig == hierarchy_signature(skeleton)
+    names = {str(p.get("source")) for p in data.get("pairs") or [] if isinstance(p, dict)}
+    return bool(names) and names <= set(skeleton.names)
+
+
 def _sha(*chunks: bytes) -> str:
     h = hashlib.sha256()
     for c in chunks:
@@ -151,7 +171,7 @@ def plan_batch(inputs: Iterable[str], rig: str | os.PathLike, out_dir: str | os.
     Returns (jobs to run, rows for clips skipped as up to date or refused while planning).
     """
     from .io import read_motion, read_skeleton
-    from .mapping import load_mapping, mapping_to_yaml
+    from .mapping import format_mapping, load_mapping
     from .match import match
 
     rig = Path(rig)
@@ -164,7 +184,7 @@ def plan_batch(inputs: Iterable[str], rig: str | os.PathLike, out_dir: str | os.
     manifest = {} if force else _load_manifest(out_dir)
     user_mapping_text = None if mapping is None else Path(mapping).read_text()
 
-    groups: dict[str, tuple[str | None, str]] = {}  # skeleton signature -> (mapping yaml, note)
+    groups: dict[str, tuple[Any, str]] = {}  # skeleton signature -> (Mapping or None, note)
     jobs: list[ClipJob] = []
     rows: list[ClipRow] = []
     for path, rel in clips:
@@ -179,26 +199,28 @@ def plan_batch(inputs: Iterable[str], rig: str | os.PathLike, out_dir: str | os.
             if user_mapping_text is not None:
                 try:
                     m = load_mapping(mapping, skeleton, rig_motion.skeleton)
-                    groups[sig] = (mapping_to_yaml(m), f"given ({Path(mapping).name})")
-                except RetargetError:
-                    # The given mapping does not fit this skeleton: the clip is matched on its own.
-                    groups[sig] = (None, "own match: the given mapping does not fit this skeleton")
+                    groups[sig] = (m, f"given ({Path(mapping).name})")
+                except MappingError:
+                    if _made_for(user_mapping_text, skeleton):
+                        raise  # the mapping was made for this skeleton: it is broken, say so before starting
+                    # Another skeleton: its clips are matched on their own, and the report says so.
+                    groups[sig] = (None, "own match: the given mapping was made for another skeleton")
             else:
                 try:
                     clip_motion = read_motion(path)
                     m = match(skeleton, rig_motion.skeleton, clip_motion, rig_motion)
-                    groups[sig] = (mapping_to_yaml(m), f"matched once for skeleton {sig[:8]}")
+                    groups[sig] = (m, f"matched once for skeleton {sig[:8]}")
                 except RetargetError as exc:
                     rows.append(ClipRow(clip=str(rel), output=str(out), status="failed", error=str(exc)))
                     continue
-        mapping_text, note = groups[sig]
-        digest = _sha(_HASH_VERSION.encode(), path.read_bytes(), rig_bytes,
-                      (mapping_text or "").encode(), opts_bytes)
+        group_mapping, note = groups[sig]
+        mapping_text = "" if group_mapping is None else format_mapping(group_mapping)
+        digest = _sha(_HASH_VERSION.encode(), path.read_bytes(), rig_bytes, mapping_text.encode(), opts_bytes)
         key = str(out.relative_to(out_dir))
         if not force and out.exists() and manifest.get(key) == digest:
             rows.append(ClipRow(clip=str(rel), output=str(out), status="skipped", mapping=note))
             continue
-        jobs.append(ClipJob(str(path), str(rel), str(out), str(rig), mapping_text, options, digest, note))
+        jobs.append(ClipJob(str(path), str(rel), str(out), str(rig), group_mapping, options, digest, note))
     return jobs, rows
 
 
@@ -210,17 +232,14 @@ def process_clip(job: ClipJob) -> ClipRow:
     row = ClipRow(clip=job.relative, output=job.output, status="failed", mapping=job.mapping_note)
     try:
         from .io import read_motion, write_motion
-        from .mapping import mapping_from_yaml
         from .pipeline import retarget_clip
 
         clip = read_motion(job.clip)
         rig = read_motion(job.rig)
-        mapping = None
-        if job.mapping_text is not None:
-            mapping = mapping_from_yaml(job.mapping_text, clip.skeleton, rig.skeleton, source=job.clip)
-        result = retarget_clip(clip, rig, mapping=mapping, **job.options)
+        result = retarget_clip(clip, rig, mapping=job.mapping, **job.options)
         Path(job.output).parent.mkdir(parents=True, exist_ok=True)
-        write_motion(job.output, result.motion, template=job.rig)
+        template = job.rig if Path(job.rig).suffix.lower() in (".gltf", ".glb") else None
+        write_motion(job.output, result.motion, template=template)
         row.status = "done"
         row.frames = result.motion.num_frames
         _fill_figures(row, result.report)
@@ -233,17 +252,16 @@ def process_clip(job: ClipJob) -> ClipRow:
 
 
 def _fill_figures(row: ClipRow, report: Any) -> None:
-    data = report.model_dump() if hasattr(report, "model_dump") else dict(report or {})
-    fid = data.get("fidelity") or {}
-    row.pose_error_mean_deg = fid.get("mean_deg")
-    row.pose_error_max_deg = fid.get("max_deg")
-    con = data.get("contacts") or {}
-    overall = con.get("overall") or con
-    row.skate_before_cm_s = overall.get("skate_before_cm_s")
-    row.skate_after_cm_s = overall.get("skate_after_cm_s")
-    row.penetration_before_cm = overall.get("penetration_before_cm")
-    row.penetration_after_cm = overall.get("penetration_after_cm")
-    row.warnings = [str(w) for w in data.get("warnings", [])]
+    """Copy the per-clip figures of a RetargetReport into a report row."""
+    row.pose_error_mean_deg = report.direction_error_mean_deg
+    row.pose_error_max_deg = report.direction_error_max_deg
+    overall = report.contacts.overall if report.contacts is not None else None
+    if overall is not None:
+        row.skate_before_cm_s = overall.skate_before_cm_s
+        row.skate_after_cm_s = overall.skate_after_cm_s
+        row.penetration_before_cm = overall.penetration_before_cm
+        row.penetration_after_cm = overall.penetration_after_cm
+    row.warnings = list(report.warnings)
 
 
 def run_batch(jobs: list[ClipJob], out_dir: str | os.PathLike, executor: Executor | None = None,
