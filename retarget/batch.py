@@ -50,6 +50,7 @@ class ClipJob:
     options: dict
     input_hash: str
     mapping_note: str = ""
+    preview: str | None = None
 
 
 class ClipRow(BaseModel):
@@ -67,6 +68,7 @@ class ClipRow(BaseModel):
     penetration_before_cm: float | None = None
     penetration_after_cm: float | None = None
     mapping: str = ""
+    preview: str | None = None
     warnings: list[str] = []
     error: str | None = None
 
@@ -165,8 +167,11 @@ def _load_manifest(out_dir: Path) -> dict[str, str]:
 
 def plan_batch(inputs: Iterable[str], rig: str | os.PathLike, out_dir: str | os.PathLike,
                mapping: str | os.PathLike | None = None, options: dict | None = None, force: bool = False,
-               output_suffix: str | None = None) -> tuple[list[ClipJob], list[ClipRow]]:
+               output_suffix: str | None = None, previews: bool = False) -> tuple[list[ClipJob], list[ClipRow]]:
     """Find the clips, settle one mapping per source skeleton and decide what needs doing.
+
+    options: retarget_clip options for every clip. previews: also write a preview page (.html) beside
+    each output.
 
     Returns (jobs to run, rows for clips skipped as up to date or refused while planning).
     """
@@ -217,10 +222,11 @@ def plan_batch(inputs: Iterable[str], rig: str | os.PathLike, out_dir: str | os.
         mapping_text = "" if group_mapping is None else format_mapping(group_mapping)
         digest = _sha(_HASH_VERSION.encode(), path.read_bytes(), rig_bytes, mapping_text.encode(), opts_bytes)
         key = str(out.relative_to(out_dir))
-        if not force and out.exists() and manifest.get(key) == digest:
+        page = str(out.with_suffix(".html")) if previews else None
+        if not force and out.exists() and manifest.get(key) == digest and (page is None or Path(page).exists()):
             rows.append(ClipRow(clip=str(rel), output=str(out), status="skipped", mapping=note))
             continue
-        jobs.append(ClipJob(str(path), str(rel), str(out), str(rig), group_mapping, options, digest, note))
+        jobs.append(ClipJob(str(path), str(rel), str(out), str(rig), group_mapping, options, digest, note, page))
     return jobs, rows
 
 
@@ -240,6 +246,11 @@ def process_clip(job: ClipJob) -> ClipRow:
         Path(job.output).parent.mkdir(parents=True, exist_ok=True)
         template = job.rig if Path(job.rig).suffix.lower() in (".gltf", ".glb") else None
         write_motion(job.output, result.motion, template=template)
+        if job.preview:
+            from .preview import write_result_preview
+
+            write_result_preview(job.preview, clip, result, title=f"{Path(job.clip).name} \u2192 {Path(job.rig).name}")
+            row.preview = job.preview
         row.status = "done"
         row.frames = result.motion.num_frames
         _fill_figures(row, result.report)
@@ -330,7 +341,7 @@ def run_batch(jobs: list[ClipJob], out_dir: str | os.PathLike, executor: Executo
 
 _CSV_FIELDS = ["clip", "output", "status", "frames", "seconds", "pose_error_mean_deg", "pose_error_max_deg",
                "skate_before_cm_s", "skate_after_cm_s", "penetration_before_cm", "penetration_after_cm",
-               "mapping", "warnings", "error"]
+               "mapping", "preview", "warnings", "error"]
 
 
 def write_batch_report(report: BatchReport, out_dir: str | os.PathLike) -> tuple[Path, Path]:

@@ -267,14 +267,13 @@ def preview_cmd(clip: str, rig: str, mapping: str | None, output: str, plots_dir
 
     from .io import read_motion
     from .pipeline import retarget_clip
-    from .preview import contact_flags, mapping_pairs, plot_clip, report_numbers, write_preview
+    from .preview import contact_flags, mapping_pairs, plot_clip, write_result_preview
 
     source = read_motion(clip)
     result = retarget_clip(source, rig, mapping=mapping)
-    contacts = contact_flags(getattr(result, "contacts", None))
+    contacts = contact_flags(result.contacts)
     title = f"{Path(clip).name} \u2192 {Path(rig).name}"
-    write_preview(output, source, result.motion, contacts=contacts, numbers=report_numbers(result.report),
-                  title=title)
+    write_result_preview(output, source, result, title=title)
     click.echo(f"wrote {output}")
     if plots_dir:
         for path in plot_clip(plots_dir, source, result.motion, contacts=contacts,
@@ -295,15 +294,17 @@ def preview_cmd(clip: str, rig: str, mapping: str | None, output: str, plots_dir
 @click.option("--in-place", is_flag=True, help="Remove horizontal root travel.")
 @click.option("--format", "fmt", type=click.Choice(["bvh", "glb", "gltf"]), default=None,
               help="Output format (default: the rig's).")
+@click.option("--previews", is_flag=True, help="Also write a preview page next to every output clip.")
 @click.option("-q", "--quiet", is_flag=True, help="No progress bar; only the summary line.")
 @_friendly
-def batch_cmd(inputs, rig, mapping, out_dir, workers, cluster, force, no_contact_fix, in_place, fmt, quiet):
+def batch_cmd(inputs, rig, mapping, out_dir, workers, cluster, force, no_contact_fix, in_place, fmt, previews,
+              quiet):
     """Retarget every clip under INPUTS (folders or glob patterns) onto one rig."""
     from .batch import plan_batch, run_batch
 
     options = {"contact_fix": not no_contact_fix, "in_place": in_place}
     jobs, prior = plan_batch(inputs, rig, out_dir, mapping=mapping, options=options, force=force,
-                             output_suffix=None if fmt is None else "." + fmt)
+                             output_suffix=None if fmt is None else "." + fmt, previews=previews)
     executor, client = None, None
     if cluster:
         from dask.distributed import Client

@@ -442,6 +442,13 @@ def write_preview(path: str | os.PathLike, source: Motion, target: Motion, **opt
     return atomic_write(path, build_preview(source, target, **options).encode("utf-8"))
 
 
+def write_result_preview(path: str | os.PathLike, source: Motion, result, title: str = "") -> Path:
+    """The page for one retarget Result (its motion, source contacts and report numbers) beside its
+    source clip."""
+    return write_preview(path, source, result.motion, contacts=contact_flags(getattr(result, "contacts", None)),
+                         numbers=report_numbers(result.report), title=title)
+
+
 # ----- pose fidelity ---------------------------------------------------------------------------------
 
 def segment_angles(source: Motion, target: Motion, pairs, *, source_convention=None,
