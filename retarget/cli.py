@@ -300,21 +300,23 @@ def preview_cmd(clip: str, rig: str, mapping: str | None, output: str, plots_dir
 def batch_cmd(inputs, rig, mapping, out_dir, workers, cluster, force, no_contact_fix, in_place, fmt, previews,
               quiet):
     """Retarget every clip under INPUTS (folders or glob patterns) onto one rig."""
-    from .batch import plan_batch, run_batch
+    from .batch import plan_batch
 
     options = {"contact_fix": not no_contact_fix, "in_place": in_place}
-    jobs, prior = plan_batch(inputs, rig, out_dir, mapping=mapping, options=options, force=force,
-                             output_suffix=None if fmt is None else "." + fmt, previews=previews)
     executor, client = None, None
     if cluster:
-        from dask.distributed import Client
-
+        try:
+            from dask.distributed import Client
+        except ImportError:
+            raise RetargetError('--cluster needs dask.distributed: pip install "retarget[cluster]"') from None
         try:
             client = Client(cluster, timeout="10s")
         except (OSError, TimeoutError) as exc:
             raise RetargetError(f"cannot reach the scheduler at {cluster}: {exc}") from None
         executor = client.get_executor()
     try:
+        jobs, prior = plan_batch(inputs, rig, out_dir, mapping=mapping, options=options, force=force,
+                                 output_suffix=None if fmt is None else "." + fmt, previews=previews)
         report = _run_with_progress(jobs, prior, out_dir, executor, workers, quiet, rig)
     except KeyboardInterrupt:
         click.echo(f"interrupted: report written to {out_dir}; finished clips are kept", err=True)
