@@ -281,7 +281,7 @@ def _contact_numbers(resolved, source: PreviewSide, target: PreviewSide) -> dict
             if fl is None:
                 ankle = ankle[tmap]
                 fl = flags
-            row[f"{'source' if name == 'source' else 'result'} slide (cm)"] = round(100.0 * float(foot_slide(ankle, fl)[-1]), 1)
+            row[f"{'source' if name == 'source' else 'result'} ankle travel while planted (cm)"] = round(100.0 * float(foot_slide(ankle, fl)[-1]), 1)
         nums[key] = row
     return nums
 
