@@ -42,30 +42,49 @@ def _axis_option(name: str, help_text: str):
     return click.option(name, default=None, metavar="AXIS", help=help_text)
 
 
+def _reading_options(func):
+    """--fps, --up, --forward and --unit-scale: how to read one file."""
+    for opt in reversed([
+        click.option("--fps", type=float, default=None, help="Override the file's frame rate."),
+        _axis_option("--up", "Override the detected up axis (+X, -Y, ...)."),
+        _axis_option("--forward", "Override the detected forward axis."),
+        click.option("--unit-scale", type=float, default=None, metavar="M", help="Override metres per file unit."),
+    ]):
+        func = opt(func)
+    return func
+
+
+def _read_with_convention(path: str, fps, up, forward, unit_scale):
+    """The clip, its body layout and its convention with the user's overrides (options checked first)."""
+    from .chains import analyze_body
+    from .convention import detect_convention, parse_axis
+    from .io import read_motion
+
+    up, forward = (parse_axis(a) if a else None for a in (up, forward))
+    motion = read_motion(path, fps=fps)
+    body = analyze_body(motion.skeleton, motion)
+    return motion, body, detect_convention(motion.skeleton, motion, body).with_overrides(up, forward, unit_scale)
+
+
 @main.command("inspect")
 @click.argument("file", type=click.Path(dir_okay=False))
 @click.option("--json", "as_json", is_flag=True, help="Print the summary as JSON.")
-@click.option("--fps", type=float, default=None, help="Override the file's frame rate.")
-@_axis_option("--up", "Override the detected up axis (+X, -Y, ...).")
-@_axis_option("--forward", "Override the detected forward axis.")
-@click.option("--unit-scale", type=float, default=None, metavar="M", help="Override metres per file unit.")
+@_reading_options
 @_friendly
 def inspect_cmd(file: str, as_json: bool, fps: float | None, up: str | None, forward: str | None,
                 unit_scale: float | None) -> None:
     """Summarise a clip or rig: joint tree, chains, convention, rest pose, frames, static joints."""
-    from .convention import detect_convention
+    from .convention import parse_axis
     from .describe import summarize
+    from .errors import SkeletonError
     from .io import read_motion
 
-    from .convention import parse_axis
-    from .errors import SkeletonError
-
-    up, forward = (parse_axis(a) if a else None for a in (up, forward))
-    motion = read_motion(file, fps=fps)
     try:
-        conv = detect_convention(motion.skeleton, motion).with_overrides(up, forward, unit_scale)
+        motion, _, conv = _read_with_convention(file, fps, up, forward, unit_scale)
     except SkeletonError:
-        conv = None  # summarize reports why there is no body layout
+        # No body layout: summarize still shows the hierarchy and says why.
+        parse_axis(up or "+Y"), parse_axis(forward or "+Z")
+        motion, conv = read_motion(file, fps=fps), None
     summary = summarize(motion, conv)
     if as_json:
         click.echo(json.dumps(summary.model_dump(), indent=2))
@@ -167,25 +186,16 @@ def _format_mapping_table(m, output: str | None) -> str:
 @main.command("contacts")
 @click.argument("clip", type=click.Path(dir_okay=False))
 @click.option("--json", "as_json", is_flag=True, help="Print the contacts as JSON.")
-@click.option("--fps", type=float, default=None, help="Override the file's frame rate.")
-@_axis_option("--up", "Override the detected up axis (+X, -Y, ...).")
-@_axis_option("--forward", "Override the detected forward axis.")
-@click.option("--unit-scale", type=float, default=None, metavar="M", help="Override metres per file unit.")
+@_reading_options
 @click.option("--width", type=click.IntRange(10, 400), default=72, show_default=True,
               help="Columns of the timeline strip.")
 @_friendly
 def contacts_cmd(clip: str, as_json: bool, fps: float | None, up: str | None, forward: str | None,
                  unit_scale: float | None, width: int) -> None:
     """Find foot contacts on a clip: a timeline per foot, contact spans, support heights, foot skate."""
-    from .chains import analyze_body
     from .contacts import detect_contacts, measure_contacts, summarize_contacts
-    from .convention import detect_convention, parse_axis
-    from .io import read_motion
 
-    up, forward = (parse_axis(a) if a else None for a in (up, forward))
-    motion = read_motion(clip, fps=fps)
-    body = analyze_body(motion.skeleton, motion)
-    conv = detect_convention(motion.skeleton, motion, body).with_overrides(up, forward, unit_scale)
+    motion, body, conv = _read_with_convention(clip, fps, up, forward, unit_scale)
     found = detect_contacts(motion, body.legs, conv)
     summary = summarize_contacts(found, measure_contacts(motion, body.legs, found, conv), file=clip)
     if as_json:
