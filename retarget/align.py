@@ -195,9 +195,12 @@ def bone_frame(direction: np.ndarray, forward: np.ndarray, use_up: bool) -> np.n
     x = direction / np.linalg.norm(direction)
     ref = UP if use_up else forward
     y = ref - np.dot(ref, x) * x
-    if np.linalg.norm(y) < 1e-6:
+    if np.linalg.norm(y) < 1e-3:
+        # The bone runs (nearly) along the reference: take the other one, a well-conditioned choice.
         other = forward if use_up else UP
         y = other - np.dot(other, x) * x
+    y = y / np.linalg.norm(y)
+    y = y - np.dot(y, x) * x  # a second projection removes the round-off of the first
     y = y / np.linalg.norm(y)
     return np.stack([x, y, np.cross(x, y)], axis=1)
 

@@ -8,6 +8,7 @@ from __future__ import annotations
 import functools
 import json
 import sys
+import time
 
 import click
 
@@ -41,30 +42,49 @@ def _axis_option(name: str, help_text: str):
     return click.option(name, default=None, metavar="AXIS", help=help_text)
 
 
+def _reading_options(func):
+    """--fps, --up, --forward and --unit-scale: how to read one file."""
+    for opt in reversed([
+        click.option("--fps", type=float, default=None, help="Override the file's frame rate."),
+        _axis_option("--up", "Override the detected up axis (+X, -Y, ...)."),
+        _axis_option("--forward", "Override the detected forward axis."),
+        click.option("--unit-scale", type=float, default=None, metavar="M", help="Override metres per file unit."),
+    ]):
+        func = opt(func)
+    return func
+
+
+def _read_with_convention(path: str, fps, up, forward, unit_scale):
+    """The clip, its body layout and its convention with the user's overrides (options checked first)."""
+    from .chains import analyze_body
+    from .convention import detect_convention, parse_axis
+    from .io import read_motion
+
+    up, forward = (parse_axis(a) if a else None for a in (up, forward))
+    motion = read_motion(path, fps=fps)
+    body = analyze_body(motion.skeleton, motion)
+    return motion, body, detect_convention(motion.skeleton, motion, body).with_overrides(up, forward, unit_scale)
+
+
 @main.command("inspect")
 @click.argument("file", type=click.Path(dir_okay=False))
 @click.option("--json", "as_json", is_flag=True, help="Print the summary as JSON.")
-@click.option("--fps", type=float, default=None, help="Override the file's frame rate.")
-@_axis_option("--up", "Override the detected up axis (+X, -Y, ...).")
-@_axis_option("--forward", "Override the detected forward axis.")
-@click.option("--unit-scale", type=float, default=None, metavar="M", help="Override metres per file unit.")
+@_reading_options
 @_friendly
 def inspect_cmd(file: str, as_json: bool, fps: float | None, up: str | None, forward: str | None,
                 unit_scale: float | None) -> None:
     """Summarise a clip or rig: joint tree, chains, convention, rest pose, frames, static joints."""
-    from .convention import detect_convention
+    from .convention import parse_axis
     from .describe import summarize
+    from .errors import SkeletonError
     from .io import read_motion
 
-    from .convention import parse_axis
-    from .errors import SkeletonError
-
-    up, forward = (parse_axis(a) if a else None for a in (up, forward))
-    motion = read_motion(file, fps=fps)
     try:
-        conv = detect_convention(motion.skeleton, motion).with_overrides(up, forward, unit_scale)
+        motion, _, conv = _read_with_convention(file, fps, up, forward, unit_scale)
     except SkeletonError:
-        conv = None  # summarize reports why there is no body layout
+        # No body layout: summarize still shows the hierarchy and says why.
+        parse_axis(up or "+Y"), parse_axis(forward or "+Z")
+        motion, conv = read_motion(file, fps=fps), None
     summary = summarize(motion, conv)
     if as_json:
         click.echo(json.dumps(summary.model_dump(), indent=2))
@@ -166,25 +186,16 @@ def _format_mapping_table(m, output: str | None) -> str:
 @main.command("contacts")
 @click.argument("clip", type=click.Path(dir_okay=False))
 @click.option("--json", "as_json", is_flag=True, help="Print the contacts as JSON.")
-@click.option("--fps", type=float, default=None, help="Override the file's frame rate.")
-@_axis_option("--up", "Override the detected up axis (+X, -Y, ...).")
-@_axis_option("--forward", "Override the detected forward axis.")
-@click.option("--unit-scale", type=float, default=None, metavar="M", help="Override metres per file unit.")
+@_reading_options
 @click.option("--width", type=click.IntRange(10, 400), default=72, show_default=True,
               help="Columns of the timeline strip.")
 @_friendly
 def contacts_cmd(clip: str, as_json: bool, fps: float | None, up: str | None, forward: str | None,
                  unit_scale: float | None, width: int) -> None:
     """Find foot contacts on a clip: a timeline per foot, contact spans, support heights, foot skate."""
-    from .chains import analyze_body
     from .contacts import detect_contacts, measure_contacts, summarize_contacts
-    from .convention import detect_convention, parse_axis
-    from .io import read_motion
 
-    up, forward = (parse_axis(a) if a else None for a in (up, forward))
-    motion = read_motion(clip, fps=fps)
-    body = analyze_body(motion.skeleton, motion)
-    conv = detect_convention(motion.skeleton, motion, body).with_overrides(up, forward, unit_scale)
+    motion, body, conv = _read_with_convention(clip, fps, up, forward, unit_scale)
     found = detect_contacts(motion, body.legs, conv)
     summary = summarize_contacts(found, measure_contacts(motion, body.legs, found, conv), file=clip)
     if as_json:
@@ -266,19 +277,96 @@ def preview_cmd(clip: str, rig: str, mapping: str | None, output: str, plots_dir
 
     from .io import read_motion
     from .pipeline import retarget_clip
-    from .preview import contact_flags, mapping_pairs, plot_clip, report_numbers, write_preview
+    from .preview import contact_flags, mapping_pairs, plot_clip, write_result_preview
 
     source = read_motion(clip)
     result = retarget_clip(source, rig, mapping=mapping)
-    contacts = contact_flags(getattr(result, "contacts", None))
+    contacts = contact_flags(result.contacts)
     title = f"{Path(clip).name} \u2192 {Path(rig).name}"
-    write_preview(output, source, result.motion, contacts=contacts, numbers=report_numbers(result.report),
-                  title=title)
+    write_result_preview(output, source, result, title=title)
     click.echo(f"wrote {output}")
     if plots_dir:
         for path in plot_clip(plots_dir, source, result.motion, contacts=contacts,
                               pairs=mapping_pairs(result.mapping), stem=Path(clip).stem, title=title):
             click.echo(f"wrote {path}")
+@main.command("batch")
+@click.argument("inputs", nargs=-1, required=True)
+@click.option("--rig", required=True, type=click.Path(dir_okay=False), help="Character rig (BVH or glTF).")
+@click.option("-m", "--mapping", type=click.Path(dir_okay=False), default=None,
+              help="Reviewed mapping file; without it one is matched per source skeleton.")
+@click.option("-o", "--output", "out_dir", required=True, type=click.Path(file_okay=False),
+              help="Output folder; mirrors the input folders.")
+@click.option("--workers", type=int, default=None, help="Local worker processes (default: one per core).")
+@click.option("--cluster", default=None, metavar="ADDRESS",
+              help="Run on a dask.distributed scheduler, e.g. tcp://10.0.0.5:8786.")
+@click.option("--force", is_flag=True, help="Redo clips whose output is already up to date.")
+@click.option("--no-contact-fix", is_flag=True, help="Leave foot contacts as the transfer made them.")
+@click.option("--in-place", is_flag=True, help="Remove horizontal root travel.")
+@click.option("--format", "fmt", type=click.Choice(["bvh", "glb", "gltf"]), default=None,
+              help="Output format (default: the rig's).")
+@click.option("--previews", is_flag=True, help="Also write a preview page next to every output clip.")
+@click.option("-q", "--quiet", is_flag=True, help="No progress bar; only the summary line.")
+@_friendly
+def batch_cmd(inputs, rig, mapping, out_dir, workers, cluster, force, no_contact_fix, in_place, fmt, previews,
+              quiet):
+    """Retarget every clip under INPUTS (folders or glob patterns) onto one rig."""
+    from .batch import plan_batch
+
+    options = {"contact_fix": not no_contact_fix, "in_place": in_place}
+    executor, client = None, None
+    if cluster:
+        try:
+            from dask.distributed import Client
+        except ImportError:
+            raise RetargetError('--cluster needs dask.distributed: pip install "retarget[cluster]"') from None
+        try:
+            client = Client(cluster, timeout="10s")
+        except (OSError, TimeoutError) as exc:
+            raise RetargetError(f"cannot reach the scheduler at {cluster}: {exc}") from None
+        executor = client.get_executor()
+    try:
+        jobs, prior = plan_batch(inputs, rig, out_dir, mapping=mapping, options=options, force=force,
+                                 output_suffix=None if fmt is None else "." + fmt, previews=previews)
+        report = _run_with_progress(jobs, prior, out_dir, executor, workers, quiet, rig)
+    except KeyboardInterrupt:
+        click.echo(f"interrupted: report written to {out_dir}; finished clips are kept", err=True)
+        sys.exit(130)
+    finally:
+        if client is not None:
+            client.close()
+    click.echo(f"{report.done} done, {report.skipped} up to date, {report.failed} failed"
+               f" ({report.clips} clips, {report.seconds:.1f} s); report: {out_dir}/batch_report.csv")
+    for row in report.rows:
+        if row.status == "failed":
+            click.echo(f"  failed  {row.clip}: {row.error}", err=True)
+    if report.failed:
+        sys.exit(1)
+
+
+def _run_with_progress(jobs, prior, out_dir, executor, workers, quiet, rig):
+    from .batch import run_batch
+
+    if quiet or not jobs:
+        return run_batch(jobs, out_dir, executor=executor, workers=workers, prior_rows=prior, rig=rig)
+    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeRemainingColumn
+
+    failed = 0
+    columns = [TextColumn("retargeting"), BarColumn(), MofNCompleteColumn(),
+               TextColumn("{task.fields[failed]} failed"), TextColumn("{task.fields[rate]}"),
+               TimeRemainingColumn()]
+    with Progress(*columns, transient=True) as bar:
+        task = bar.add_task("clips", total=len(jobs), failed=0, rate="")
+        start = time.perf_counter()
+
+        def on_row(row):
+            nonlocal failed
+            failed += row.status == "failed"
+            done = bar.tasks[0].completed + 1
+            rate = done / max(time.perf_counter() - start, 1e-9)
+            bar.update(task, advance=1, failed=failed, rate=f"{rate:.1f} clips/s")
+
+        return run_batch(jobs, out_dir, executor=executor, workers=workers, on_row=on_row, prior_rows=prior,
+                         rig=rig)
 
 
 def _frame_range(text: str | None) -> tuple[int | None, int | None] | None:

@@ -159,17 +159,6 @@ def save_mapping(mapping: Mapping, path: str | os.PathLike) -> Path:
 
 # ----- reading and checking -------------------------------------------------------------------------------
 
-def _ancestors(skeleton: Skeleton) -> np.ndarray:
-    """(J, J) bool: [a, b] is True when joint a is a proper ancestor of joint b."""
-    n = skeleton.num_joints
-    anc = np.zeros((n, n), dtype=bool)
-    for j in range(1, n):
-        p = skeleton.parents[j]
-        anc[:, j] = anc[:, p]
-        anc[p, j] = True
-    return anc
-
-
 def _suggest(name: str, names) -> str:
     close = difflib.get_close_matches(name, list(names), n=1, cutoff=0.6)
     return f" (did you mean {close[0]!r}?)" if close else ""
@@ -245,8 +234,8 @@ def validate_mapping(mapping: Mapping, source: Skeleton, target: Skeleton,
         entries = np.array([v[0] for v in valid])
         si = np.array([v[1] for v in valid])
         ti = np.array([v[2] for v in valid])
-        a_s = _ancestors(source)[np.ix_(si, si)]
-        a_t = _ancestors(target)[np.ix_(ti, ti)]
+        a_s = source.ancestor_matrix[np.ix_(si, si)]
+        a_t = target.ancestor_matrix[np.ix_(ti, ti)]
         bad = np.argwhere(a_s != a_t)
         shown = 0
         for x, y in bad:

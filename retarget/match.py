@@ -86,16 +86,6 @@ class _Figure:
         return 0.5 * float(np.linalg.norm(self.pos[j] - self.pos[p])) if p >= 0 else 0.0
 
 
-def _ancestor_matrix(skeleton: Skeleton) -> np.ndarray:
-    n = skeleton.num_joints
-    anc = np.zeros((n, n), dtype=bool)
-    for j in range(1, n):
-        p = skeleton.parents[j]
-        anc[:, j] = anc[:, p]
-        anc[p, j] = True
-    return anc
-
-
 def _unit(v: np.ndarray) -> np.ndarray | None:
     n = float(np.linalg.norm(v))
     return None if not np.isfinite(n) or n < 1e-12 else v / n
@@ -150,7 +140,7 @@ def _read(skeleton: Skeleton, motion) -> _Figure:
         note = "sides from geometry" if cert >= 0.5 else "left/right unclear from geometry"
     else:
         cert, note = 0.0, "left/right undecided (no side names, no toe direction)"
-    fig = _Figure(skeleton, body, pos, tips, body.still, _ancestor_matrix(skeleton), cert, note, facing_known)
+    fig = _Figure(skeleton, body, pos, tips, body.still, skeleton.ancestor_matrix, cert, note, facing_known)
     for c in body.chains:
         for j in c.joints:
             fig.chain_of[j] = c

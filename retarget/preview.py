@@ -281,7 +281,7 @@ def _contact_numbers(resolved, source: PreviewSide, target: PreviewSide) -> dict
             if fl is None:
                 ankle = ankle[tmap]
                 fl = flags
-            row[f"{'source' if name == 'source' else 'result'} slide (cm)"] = round(100.0 * float(foot_slide(ankle, fl)[-1]), 1)
+            row[f"{'source' if name == 'source' else 'result'} ankle travel while planted (cm)"] = round(100.0 * float(foot_slide(ankle, fl)[-1]), 1)
         nums[key] = row
     return nums
 
@@ -440,6 +440,13 @@ def write_preview(path: str | os.PathLike, source: Motion, target: Motion, **opt
     from .io.atomic import atomic_write
 
     return atomic_write(path, build_preview(source, target, **options).encode("utf-8"))
+
+
+def write_result_preview(path: str | os.PathLike, source: Motion, result, title: str = "") -> Path:
+    """The page for one retarget Result (its motion, source contacts and report numbers) beside its
+    source clip."""
+    return write_preview(path, source, result.motion, contacts=contact_flags(getattr(result, "contacts", None)),
+                         numbers=report_numbers(result.report), title=title)
 
 
 # ----- pose fidelity ---------------------------------------------------------------------------------

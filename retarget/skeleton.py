@@ -137,7 +137,19 @@ class Skeleton:
 
     def is_ancestor(self, a: int, b: int) -> bool:
         """True when joint a is a proper ancestor of joint b."""
-        return a in self.ancestors(b)
+        return bool(self.ancestor_matrix[a, b])
+
+    @cached_property
+    def ancestor_matrix(self) -> np.ndarray:
+        """(J, J) bool: [a, b] is True when joint a is a proper ancestor of joint b."""
+        n = len(self.names)
+        anc = np.zeros((n, n), dtype=bool)
+        for j in range(1, n):
+            p = self.parents[j]
+            anc[:, j] = anc[:, p]
+            anc[p, j] = True
+        anc.setflags(write=False)
+        return anc
 
     def rotation_order(self, j: int) -> str:
         """The joint's rotation channel axes in file order, e.g. "ZXY" ("" when it has none)."""

@@ -328,4 +328,4 @@ def transfer(motion: Motion, alignment: Alignment, in_place: bool = False, check
     root_file = (root @ ct) / st
     if translations is not None:
         translations[:, 0] = root_file
-    return Motion(tgt, local, root_file, motion.fps, translations, source=motion.source)
+    return Motion(tgt, local, root_file, motion.fps, translations, source=tgt.source)

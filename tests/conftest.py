@@ -6,6 +6,13 @@ import os
 from pathlib import Path
 
 import pytest
+from hypothesis import settings
+
+# Property tests draw the same examples on every run, so a result never depends on luck; set
+# HYPOTHESIS_PROFILE=explore to draw fresh ones.
+settings.register_profile("repeatable", derandomize=True, print_blob=True)
+settings.register_profile("explore", derandomize=False)
+settings.load_profile(os.environ.get("HYPOTHESIS_PROFILE", "repeatable"))
 
 REPO = Path(__file__).resolve().parents[1]
 

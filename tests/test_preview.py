@@ -166,7 +166,8 @@ def test_contacts_are_embedded_as_runs_and_resolve_to_both_feet():
     assert by_key["right_foot"]["source"] == by_key["right_foot"]["target"] == "right"
     names = data["sides"][0]["joints"]
     assert {names[q] for q in data["sides"][0]["feet"]["left"] if q < len(names)} == {"left_foot", "left_toes"}
-    assert set(data["contact_numbers"]["left"]) == {"frames in contact", "source slide (cm)", "result slide (cm)"}
+    assert set(data["contact_numbers"]["left"]) == {"frames in contact", "source ankle travel while planted (cm)",
+                                                        "result ankle travel while planted (cm)"}
 
 
 def test_contact_flags_of_the_wrong_length_are_refused():

@@ -21,7 +21,7 @@ from ..motion import Motion
 from ..skeleton import POSITION_CHANNELS, ROTATION_CHANNELS, Skeleton
 from .atomic import atomic_write
 
-__all__ = ["read_bvh", "write_bvh", "format_bvh"]
+__all__ = ["read_bvh", "read_bvh_skeleton", "write_bvh", "format_bvh", "parse_bvh"]
 
 _VALID_CHANNELS = set(POSITION_CHANNELS) | set(ROTATION_CHANNELS)
 _NUMBER = re.compile(r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$")
@@ -340,14 +340,42 @@ def _body_text(text: str, full, pos: int) -> str:
     return (full() if full is not None else text)[pos:]
 
 
+def read_bvh_skeleton(path: str | os.PathLike) -> Skeleton:
+    """Only the hierarchy of a BVH file, without reading its frames."""
+    path = str(path)
+    chunks: list[bytes] = []
+    try:
+        with open(path, "rb") as fh:
+            while True:
+                block = fh.read(1 << 16)
+                chunks.append(block)
+                if not block or re.search(rb"^[ \t]*MOTION[ \t]*\r?$", b"".join(chunks[-2:]),
+                                          flags=re.MULTILINE | re.IGNORECASE):
+                    break
+    except FileNotFoundError:
+        raise BVHError("file not found", path=path) from None
+    except IsADirectoryError:
+        raise BVHError("is a folder, expected a BVH file", path=path) from None
+    except OSError as exc:
+        raise BVHError(f"cannot read: {exc.strerror}", path=path) from None
+    text = b"".join(chunks).decode("utf-8", errors="replace")
+    m = re.search(r"^[ \t]*MOTION[ \t]*\r?$", text, flags=re.MULTILINE | re.IGNORECASE)
+    h, _ = _parse_hierarchy((text if m is None else text[: m.end()]).splitlines(), path)
+    return _skeleton(h, path)
+
+
+def _skeleton(h: _Hierarchy, path: str) -> Skeleton:
+    tips = np.array([t if t is not None else [np.nan] * 3 for t in h.tips], dtype=np.float64)
+    return Skeleton(tuple(h.names), np.array(h.parents), np.array(h.offsets), None, tips, tuple(h.channels),
+                    source=path)
+
+
 _READ_BLOCK = 1 << 16  # rotations converted per block of frames while reading
 
 
 def _to_motion(h: _Hierarchy, values: np.ndarray, fps: float, path: str) -> Motion:
     n = len(h.names)
-    tips = np.array([t if t is not None else [np.nan] * 3 for t in h.tips], dtype=np.float64)
-    skeleton = Skeleton(tuple(h.names), np.array(h.parents), np.array(h.offsets), None, tips,
-                        tuple(h.channels), source=path)
+    skeleton = _skeleton(h, path)
     f = values.shape[0]
     rotations = np.empty((f, n, 4))
     offsets = skeleton.offsets
