@@ -105,9 +105,6 @@ class Motion:
         return forward_kinematics(self.skeleton, self.rotations, self.root_positions, self.translations)
 
 
-_FK_BLOCK = 256  # frames per block when transposing the local rotations
-
-
 def forward_kinematics(skeleton: Skeleton, rotations: np.ndarray, root_positions: np.ndarray,
                        translations: np.ndarray | None = None, joints=None) -> tuple[np.ndarray, np.ndarray]:
     """Global rotations and positions for every frame.
@@ -134,12 +131,8 @@ def forward_kinematics(skeleton: Skeleton, rotations: np.ndarray, root_positions
                 j = int(parents[j])
         todo = sorted(need)  # parents come before their children
     slot = {j: i for i, j in enumerate(todo)}
-    # The local rotations of the joints needed, as contiguous (4, F) planes per joint; transposed in
-    # blocks of frames that stay in the CPU cache.
-    local = np.empty((len(todo), 4, f))
-    pick = slice(None) if len(todo) == n else todo
-    for f0 in range(0, f, _FK_BLOCK):
-        local[:, :, f0: f0 + _FK_BLOCK] = rotations[f0: f0 + _FK_BLOCK, pick].transpose(1, 2, 0)
+    # The local rotations of the joints needed, as contiguous (4, F) rows per joint.
+    local = quat.to_component_major(rotations, None if len(todo) == n else todo)
     grot = np.empty((len(todo), 4, f))
     gpos = np.empty((len(todo), 3, f))
     offsets = skeleton.offsets

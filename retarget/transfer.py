@@ -146,9 +146,11 @@ def _source_world(motion: Motion, rot_joints, pos_joints) -> tuple[dict, dict]:
     pos: dict[int, np.ndarray] = {}
     need_pos = set(_closure(sk, pos_joints))
     tr = motion.translations
-    for j in _closure(sk, list(rot_joints) + list(pos_joints)):
+    todo = _closure(sk, list(rot_joints) + list(pos_joints))
+    locals_ = quat.to_component_major(motion.rotations, todo)
+    for i, j in enumerate(todo):
         p = int(sk.parents[j])
-        local = np.ascontiguousarray(motion.rotations[:, j].T)
+        local = locals_[i]
         if p < 0:
             rots[j] = local
             if j in need_pos:
@@ -300,7 +302,7 @@ def transfer(motion: Motion, alignment: Alignment, in_place: bool = False, check
     local[0] = _const(g[0], left_product(qt_inv))
     for j in range(1, nt):
         local[j] = _mul(g[int(tgt.parents[j])], g[j], conj_a=True)
-    local = local.transpose(2, 0, 1)
+    local = quat.from_component_major(local)
 
     ct = al.target_convention.file_to_canonical()
     st = al.target_convention.scale
