@@ -398,24 +398,51 @@ def _window(count: int, frames: int) -> int:
     return w if w >= 3 else 0
 
 
+def _savgol(p: np.ndarray, window: int, deriv: int) -> np.ndarray:
+    """Savitzky-Golay filter along axis 0 over an odd ``window`` (>= 3, at most the length): each sample
+    becomes the value (deriv 0) or the slope per sample (deriv 1) of the least-squares polynomial of
+    degree min(2, window - 1) through the window centred on it; the first and last window // 2 samples
+    read the polynomial fitted to the first or last ``window`` samples. The same filter as
+    scipy.signal.savgol_filter(..., mode="interp"), in numpy so the command line need not load scipy."""
+    p = np.asarray(p, dtype=np.float64)
+    n, half = p.shape[0], window // 2
+    powers = np.arange(min(2, window - 1) + 1)
+
+    def rows(at: np.ndarray) -> np.ndarray:  # value or slope of each power at the positions ``at``
+        if deriv == 0:
+            return at[:, None] ** powers
+        return powers * at[:, None] ** np.maximum(powers - 1, 0)
+
+    # Centred windows: one weight per tap, from the fit over positions -half .. half.
+    taps = rows(np.zeros(1)) @ np.linalg.pinv((np.arange(window) - half)[:, None] ** powers)
+    out = np.empty_like(p)
+    inner = out[half: n - half]
+    np.multiply(p[: n - window + 1], taps[0, 0], out=inner)
+    for i in range(1, window):
+        inner += taps[0, i] * p[i: n - window + 1 + i]
+    # Ends: the fit over the first (last) window samples, at positions 0 .. window - 1.
+    fit = np.linalg.pinv(np.arange(window, dtype=np.float64)[:, None] ** powers)
+    head = rows(np.arange(half, dtype=np.float64)) @ fit
+    tail = rows(np.arange(window - half, window, dtype=np.float64)) @ fit
+    out[:half] = np.tensordot(head, p[:window], axes=1)
+    out[n - half:] = np.tensordot(tail, p[n - window:], axes=1)
+    return out
+
+
 def _velocity(p: np.ndarray, fps: float, window: int) -> np.ndarray:
     """Time derivative along axis 0 (per second), Savitzky-Golay over ``window`` frames (quadratic fit)."""
-    from scipy.signal import savgol_filter
-
     n = p.shape[0]
     w = _window(n, window)
     if w == 0:
         return np.zeros_like(p)
-    return savgol_filter(p, w, min(2, w - 1), deriv=1, axis=0, mode="interp") * fps
+    return _savgol(p, w, 1) * fps
 
 
 def _smooth(p: np.ndarray, window: int) -> np.ndarray:
-    from scipy.signal import savgol_filter
-
     w = _window(p.shape[0], window)
     if w == 0:
         return np.array(p, dtype=np.float64)
-    return savgol_filter(p, w, min(2, w - 1), axis=0, mode="interp")
+    return _savgol(p, w, 0)
 
 
 # ----- foot geometry -----------------------------------------------------------------------------------
@@ -1084,14 +1111,13 @@ def _foot_moves(contacts: FootContacts, sole: _Sole, step: np.ndarray, blend: in
 
 def _envelope(need: np.ndarray, radius: int) -> np.ndarray:
     """A smooth curve at or above ``need`` ((n,) >= 0): running maximum, then running mean, both over
-    2 * radius + 1 samples."""
-    from scipy.ndimage import maximum_filter1d, uniform_filter1d
-
+    2 * radius + 1 samples (the ends repeat the end values)."""
     if not np.any(need > 0):
         return np.zeros_like(need)
     size = 2 * radius + 1
-    return np.maximum(uniform_filter1d(maximum_filter1d(need, size=size, mode="nearest"), size=size,
-                                       mode="nearest"), need)
+    windows = np.lib.stride_tricks.sliding_window_view
+    peak = windows(np.pad(need, radius, mode="edge"), size).max(axis=1)
+    return np.maximum(windows(np.pad(peak, radius, mode="edge"), size).mean(axis=1), need)
 
 
 def _root_drop(need: np.ndarray, active: np.ndarray, radius: int) -> np.ndarray:

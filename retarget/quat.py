@@ -261,13 +261,49 @@ def to_matrix(q: np.ndarray) -> np.ndarray:
 
 
 def from_matrix(m: np.ndarray) -> np.ndarray:
-    """Unit quaternions from rotation matrices: (..., 3, 3) -> (..., 4), w >= 0."""
-    from scipy.spatial.transform import Rotation
+    """Unit quaternions from rotation matrices: (..., 3, 3) -> (..., 4), w >= 0.
 
-    m = np.asarray(m, dtype=np.float64)
-    flat = Rotation.from_matrix(m.reshape(-1, 3, 3)).as_quat()
-    q = flat.reshape(m.shape[:-2] + (4,))
-    return np.where(q[..., 3:4] < 0, -q, q)
+    A matrix that is not orthonormal (to 1e-12) is first replaced by the nearest rotation (U V^T of its
+    singular value decomposition); a matrix with a determinant <= 0 raises ValueError. The quaternion
+    is built from the largest of the trace and the diagonal entries, which keeps it well conditioned
+    (as scipy's Rotation.from_matrix does; numpy only, so the command line does not load scipy)."""
+    m = np.array(m, dtype=np.float64)
+    flat = m.reshape(-1, 3, 3)
+    det = np.linalg.det(flat) if flat.shape[0] else np.zeros(0)
+    if np.any(det <= 0):
+        k = int(np.flatnonzero(det <= 0)[0])
+        raise ValueError(f"rotation matrix {k} has a non-positive determinant (left-handed or null frame): "
+                         f"{flat[k].tolist()}")
+    gram = flat @ flat.transpose(0, 2, 1)
+    skew = ~np.all(np.abs(gram - np.eye(3)) <= 1e-12, axis=(1, 2))
+    if np.any(skew):
+        u, _, vt = np.linalg.svd(flat[skew])
+        flat[skew] = u @ vt
+    trace = flat[:, 0, 0] + flat[:, 1, 1] + flat[:, 2, 2]
+    choice = np.argmax(np.stack([flat[:, 0, 0], flat[:, 1, 1], flat[:, 2, 2], trace], axis=1), axis=1)
+    q = np.empty((flat.shape[0], 4))
+    for i in range(3):
+        rows = choice == i
+        if not np.any(rows):
+            continue
+        r = flat[rows]
+        j, k = (i + 1) % 3, (i + 2) % 3
+        v = np.empty((r.shape[0], 4))
+        v[:, i] = 1.0 - trace[rows] + 2.0 * r[:, i, i]
+        v[:, j] = r[:, j, i] + r[:, i, j]
+        v[:, k] = r[:, k, i] + r[:, i, k]
+        v[:, 3] = r[:, k, j] - r[:, j, k]
+        q[rows] = v
+    rows = choice == 3
+    if np.any(rows):
+        r = flat[rows]
+        q[rows, 0] = r[:, 2, 1] - r[:, 1, 2]
+        q[rows, 1] = r[:, 0, 2] - r[:, 2, 0]
+        q[rows, 2] = r[:, 1, 0] - r[:, 0, 1]
+        q[rows, 3] = 1.0 + trace[rows]
+    q /= np.linalg.norm(q, axis=1, keepdims=True)
+    q = np.where(q[:, 3:4] < 0, -q, q)
+    return q.reshape(m.shape[:-2] + (4,))
 
 
 def _matrix_entry(comps: tuple[np.ndarray, ...], r: int, c: int) -> np.ndarray:
