@@ -78,3 +78,18 @@ def test_contacts_json_lists_spans_per_foot():
 def test_contacts_on_a_file_without_legs_is_one_line_exit_2():
     r = CliRunner().invoke(main, ["contacts", str(DATA / "mixed.bvh")])
     assert r.exit_code == 2 and r.output.count("\n") == 1 and "no legs" in r.output
+
+
+def test_apply_runs_without_loading_scipy(tmp_path):
+    """A whole `apply` (read, transfer, foot contacts, write) needs only numpy: scipy alone costs about
+    half a second of start-up on every run and every batch worker."""
+    demo = Path(__file__).resolve().parents[1]
+    code = ("import sys; from retarget.cli import main\n"
+            "try:\n    main(sys.argv[1:])\nexcept SystemExit as e:\n    assert not e.code, e.code\n"
+            "print([m for m in sys.modules if m == 'scipy' or m.startswith('scipy.')][:3])")
+    args = ["apply", str(demo / "demo_clips" / "capture" / "walk.bvh"), "--rig",
+            str(demo / "demo_clips" / "rigs" / "brannoc_stocky.bvh"), "-m",
+            str(demo / "mappings" / "tallowmere_to_brannoc_stocky.yaml"), "-o", str(tmp_path / "out.bvh")]
+    out = subprocess.run([sys.executable, "-c", code, *args], capture_output=True, text=True, check=True).stdout
+    assert out.strip().splitlines()[-1] == "[]"
+    assert (tmp_path / "out.bvh").exists()

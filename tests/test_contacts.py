@@ -403,3 +403,41 @@ def test_plant_feet_fixes_or_only_measures():
     fixed, report2, _ = plant_feet(motion, legs, conv, target, legs, conv)
     assert report2.fixed and report2.overall.skate_after_cm_s < 0.01 * report2.overall.skate_before_cm_s
     assert report2.overall.skate_before_cm_s == pytest.approx(report.overall.skate_before_cm_s)
+
+
+# ----- the filters (numpy versions of scipy's) ----------------------------------------------------------
+
+def test_savitzky_golay_matches_scipy_savgol_filter():
+    """The contact step's Savitzky-Golay smoothing and slope equal scipy.signal.savgol_filter with
+    mode='interp' (the outside reference: same least-squares windows, same polynomial fit at the ends),
+    for short and long signals and every window the step uses; 1e-10 of the signal's size is rounding."""
+    from scipy.signal import savgol_filter
+
+    from retarget.contacts import _savgol
+
+    rng = np.random.default_rng(2)
+    for n in (3, 4, 7, 50, 600):
+        for w in (3, 5, 9, 13, 31):
+            if w > n:
+                continue
+            p = np.cumsum(rng.normal(size=(n, 2, 3)), axis=0) * 10.0
+            for deriv in (0, 1):
+                ref = savgol_filter(p, w, min(2, w - 1), deriv=deriv, axis=0, mode="interp")
+                np.testing.assert_allclose(_savgol(p, w, deriv), ref, atol=1e-10 * np.abs(p).max())
+
+
+def test_envelope_matches_scipy_running_maximum_then_mean():
+    """The root-drop envelope equals scipy.ndimage's maximum_filter1d then uniform_filter1d (edges
+    repeating the end values), kept at or above the need."""
+    from scipy.ndimage import maximum_filter1d, uniform_filter1d
+
+    from retarget.contacts import _envelope
+
+    rng = np.random.default_rng(6)
+    for n in (1, 2, 9, 200):
+        for radius in (1, 2, 5):
+            need = np.maximum(0.0, rng.normal(size=n))
+            size = 2 * radius + 1
+            ref = np.maximum(uniform_filter1d(maximum_filter1d(need, size=size, mode="nearest"), size=size,
+                                              mode="nearest"), need)
+            np.testing.assert_allclose(_envelope(need, radius), ref, atol=1e-12)

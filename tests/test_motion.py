@@ -7,7 +7,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from scipy.spatial.transform import Rotation
 
-from retarget import Motion, Skeleton, quat
+from retarget import Motion, Skeleton, forward_kinematics, quat
 
 
 def _random_skeleton(rng, n=12, rest_rotations=False):
@@ -84,3 +84,22 @@ def test_fk_of_rest_rotations_is_rest_pose(n, seed):
     grot, gpos = Motion.rest(sk, frames=2).global_transforms()
     np.testing.assert_allclose(gpos[0], sk.rest_global[1], atol=1e-9)
     assert np.all(np.abs(np.linalg.norm(grot, axis=-1) - 1) < 1e-12)
+
+
+def test_fk_of_some_joints_equals_the_same_columns_of_full_fk():
+    """forward_kinematics(joints=...) computes only those joints and their ancestors; its columns are
+    bit for bit the full result's (same arithmetic, joint by joint), in the order asked for."""
+    rng = np.random.default_rng(5)
+    sk = _random_skeleton(rng, n=15, rest_rotations=True)
+    f = 40
+    rot = Rotation.random(f * 15, random_state=4).as_quat().reshape(f, 15, 4)
+    root = rng.normal(size=(f, 3))
+    trans = rng.normal(size=(f, 15, 3))
+    for tr in (None, trans):
+        grot, gpos = forward_kinematics(sk, rot, root, tr)
+        pick = [11, 3, 14, 0]
+        sub_rot, sub_pos = forward_kinematics(sk, rot, root, tr, joints=pick)
+        assert sub_rot.shape == (f, 4, 4) and sub_pos.shape == (f, 4, 3)
+        assert np.array_equal(sub_rot, grot[:, pick]) and np.array_equal(sub_pos, gpos[:, pick])
+    np.testing.assert_allclose(forward_kinematics(sk, rot, root, trans)[1], _slow_fk(sk, rot, root, trans),
+                               atol=1e-9)

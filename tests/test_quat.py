@@ -142,3 +142,58 @@ def test_between_vectors_including_opposite():
     q = quat.between_vectors(a, b)
     out = quat.rotate(q, a / np.linalg.norm(a, axis=1, keepdims=True))
     np.testing.assert_allclose(out, b / np.linalg.norm(b, axis=1, keepdims=True), atol=1e-9)
+
+
+def test_from_matrix_matches_scipy_including_half_turns_and_skewed_input():
+    """quat.from_matrix (numpy) against scipy's Rotation.from_matrix: random rotations, identity, half
+    turns about each axis and one just short of it (where the trace is no longer the largest pick),
+    and matrices off orthonormal by 1e-3 (both take the nearest rotation first). Both use the same
+    construction, so 1e-12 only leaves room for rounding. Left-handed frames are refused."""
+    m = Rotation.random(500, random_state=3).as_matrix()
+    special = Rotation.from_rotvec(np.array([[0, 0, 0], [np.pi, 0, 0], [0, np.pi, 0], [0, 0, np.pi],
+                                             [np.pi - 1e-9, 0, 0], [np.pi / np.sqrt(2), np.pi / np.sqrt(2), 0]]))
+    skewed = m[:50] + np.random.default_rng(3).normal(size=(50, 3, 3)) * 1e-3
+    for mats in (np.concatenate([m, special.as_matrix()]), skewed):
+        ours = quat.from_matrix(mats)
+        theirs = Rotation.from_matrix(mats).as_quat()
+        theirs = np.where(theirs[:, 3:4] < 0, -theirs, theirs)
+        np.testing.assert_allclose(ours, theirs, atol=1e-12)
+        assert np.all(ours[:, 3] >= 0)
+    assert quat.from_matrix(np.eye(3)).tolist() == [0.0, 0.0, 0.0, 1.0]
+    assert quat.from_matrix(np.zeros((2, 0, 3, 3))).shape == (2, 0, 4)
+    with pytest.raises(ValueError, match="determinant"):
+        quat.from_matrix(np.diag([1.0, 1.0, -1.0]))
+
+
+def test_from_euler_accurate_for_large_and_whole_turn_angles():
+    """from_euler reduces angles by whole turns before its half-angle tangents: against scipy, and
+    against the same rotation given with the angles reduced to (-180, 180], for angles up to ten turns
+    (BVH files carry unwrapped angles) and exactly on whole and half turns. 1e-12: rounding of angles
+    near 3600 degrees is about 1e-13 relative."""
+    rng = np.random.default_rng(8)
+    ang = np.concatenate([rng.uniform(-3600, 3600, (2000, 3)),
+                          np.array([[180, -180, 360], [540, 720, -900], [0, 0, 0], [90, -90, 270]])])
+    for order in ORDERS:
+        ours = quat.from_euler(ang, order, degrees=True)
+        theirs = Rotation.from_euler(order, ang, degrees=True).as_quat()
+        assert _same_rotation(ours, theirs)
+        reduced = quat.from_euler((ang + 180.0) % 360.0 - 180.0, order, degrees=True)
+        assert _same_rotation(ours, reduced)
+        np.testing.assert_allclose(np.linalg.norm(ours, axis=-1), 1.0, atol=1e-14)
+    # Whole turns flip the quaternion's sign, as the half-angle product says: q(a + 360) = -q(a).
+    np.testing.assert_allclose(quat.from_euler([370.0, 0, 0], "XYZ", degrees=True),
+                               -quat.from_euler([10.0, 0, 0], "XYZ", degrees=True), atol=1e-15)
+    out = np.empty((3, 2, 4))
+    res = quat.from_euler(np.zeros((3, 2, 3)), "ZXY", out=out)
+    assert res is out and np.all(out[..., 3] == 1.0)
+
+
+def test_component_major_layout_round_trip():
+    """to_component_major / from_component_major are exact inverses (a copy, nothing computed), for
+    all joints and for a picked subset, over more frames than one copy block."""
+    data = np.random.default_rng(1).normal(size=(1000, 7, 4))
+    planes = quat.to_component_major(data)
+    assert planes.shape == (7, 4, 1000) and planes.flags.c_contiguous
+    assert np.array_equal(planes, data.transpose(1, 2, 0))
+    assert np.array_equal(quat.from_component_major(planes), data)
+    assert np.array_equal(quat.to_component_major(data, [5, 1]), data[:, [5, 1]].transpose(1, 2, 0))
