@@ -123,20 +123,24 @@ def reference_pose(skeleton: Skeleton, motion=None) -> tuple[np.ndarray, np.ndar
     tips = np.asarray(skeleton.rest_tips)
     if not _is_degenerate(skeleton, pos) or motion is None:
         return pos, tips, "rest"
-    grot, gpos = motion.global_transforms()
-    # The frame whose pose spreads most in its second direction reads best; take the best of a few.
+    from .motion import forward_kinematics
+
+    # The frame whose pose spreads most in its second direction reads best; take the best of a few
+    # (forward kinematics of those frames only).
     count = motion.num_frames
     picks = np.unique(np.linspace(0, count - 1, min(count, 9)).astype(int))
-    best, score = int(picks[0]), -1.0
-    for f in picks:
-        c = gpos[f] - gpos[f].mean(axis=0)
+    tr = None if motion.translations is None else motion.translations[picks]
+    grot, gpos = forward_kinematics(skeleton, motion.rotations[picks], motion.root_positions[picks], tr)
+    best, score = 0, -1.0
+    for i in range(len(picks)):
+        c = gpos[i] - gpos[i].mean(axis=0)
         s = np.linalg.svd(c, compute_uv=False)
         sc = s[1] / max(s[0], 1e-12)
         if sc > score + 1e-9:
-            best, score = int(f), sc
+            best, score = i, sc
     p = gpos[best]
     t = p + quat.rotate(grot[best], np.nan_to_num(skeleton.tips)) + np.where(np.isnan(skeleton.tips), np.nan, 0.0)
-    return p, t, f"frame {best}"
+    return p, t, f"frame {int(picks[best])}"
 
 
 # ----- topology helpers ------------------------------------------------------------------------------

@@ -105,8 +105,8 @@ def _foot_direction(body: BodyLayout) -> np.ndarray | None:
     return _unit(acc)
 
 
-def _read(skeleton: Skeleton, motion) -> _Figure:
-    body = analyze_body(skeleton, motion)
+def _read(skeleton: Skeleton, motion, body: BodyLayout | None = None) -> _Figure:
+    body = analyze_body(skeleton, motion) if body is None else body
     up = body.up
     fwd = body.forward
     facing_known = fwd is not None
@@ -719,11 +719,14 @@ class _Matcher:
         return reason
 
 
-def match(source: Skeleton, target: Skeleton, source_motion=None, target_motion=None) -> Mapping:
+def match(source: Skeleton, target: Skeleton, source_motion=None, target_motion=None, *,
+          source_body: BodyLayout | None = None, target_body: BodyLayout | None = None) -> Mapping:
     """Propose which target joint each source joint drives.
 
     source_motion / target_motion: optional clips on the skeletons; used when a rest pose is degenerate
     (bones along one line) and to know which joints a clip never moves.
+    source_body / target_body: the skeletons' analyze_body results (with the same clips) when the caller
+    has them already.
     Returns a Mapping whose pairs preserve ancestry both ways, whose root-most pair is pelvis to pelvis,
     with legs (thigh, shin, foot, toe) and arms (upper arm, forearm, hand) always paired; every pair
     carries a confidence in [0, 1] and a reason, every unpaired joint a reason.
@@ -731,8 +734,8 @@ def match(source: Skeleton, target: Skeleton, source_motion=None, target_motion=
     """
     from .mapping import JointPair, Mapping, UnmappedJoint, hierarchy_signature
 
-    fa = _read(source, source_motion)
-    fb = _read(target, target_motion)
+    fa = _read(source, source_motion, source_body)
+    fb = _read(target, target_motion, target_body)
     m = _Matcher(fa, fb)
     m.run()
     pairs = []

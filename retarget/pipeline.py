@@ -145,16 +145,18 @@ def _options(options: dict) -> RetargetOptions:
         raise OptionError(f"option {where}: {err.get('msg', 'invalid value')}") from None
 
 
-def _mapping_for(mapping, source: Skeleton, target: Skeleton, smotion: Motion, tmotion: Motion | None):
+def _mapping_for(mapping, source: Skeleton, target: Skeleton, smotion: Motion, tmotion: Motion | None,
+                 bodies: tuple = (None, None)):
     """The Mapping to use and its (source index, target index) pairs.
 
     mapping: None (matched now), a Mapping, a mapping file, or (source, target) pairs of joint names or
-    indices (taken as given, confidence 1)."""
+    indices (taken as given, confidence 1). bodies: the two skeletons' analyze_body results, if known."""
     from .mapping import JointPair, Mapping, load_mapping
     from .match import match
 
     if mapping is None:
-        m = match(source, target, source_motion=smotion, target_motion=tmotion)
+        m = match(source, target, source_motion=smotion, target_motion=tmotion, source_body=bodies[0],
+                  target_body=bodies[1])
     elif isinstance(mapping, (str, os.PathLike)):
         m = load_mapping(mapping, source, target)
     elif isinstance(mapping, Mapping):
@@ -231,7 +233,7 @@ def retarget_clip(clip, rig, mapping=None, **options) -> Result:
     tconv = detect_convention(target, rig_motion, tbody).with_overrides(
         opts.rig_up, opts.rig_forward, opts.rig_unit_scale)
 
-    used_mapping, pairs = _mapping_for(mapping, source, target, source_full, rig_motion)
+    used_mapping, pairs = _mapping_for(mapping, source, target, source_full, rig_motion, (sbody, tbody))
 
     motion = source_full
     first = 0
