@@ -14,9 +14,14 @@ __all__ = ["Motion", "forward_kinematics"]
 
 
 def _readonly(a: np.ndarray) -> np.ndarray:
-    a = np.ascontiguousarray(a, dtype=np.float64)
-    if a.flags.writeable and a.base is not None:
-        a = a.copy()
+    """A read-only float64 array, frame-major (C order) or, for (F, J, k) data, component-major (a
+    transposed view of a C-ordered (J, k, F) array); anything else is made C-ordered. Writable views of
+    someone else's array are copied (keeping their layout)."""
+    a = np.asarray(a, dtype=np.float64)
+    if not (a.flags.c_contiguous or quat.is_component_major(a)):
+        a = np.ascontiguousarray(a)
+    elif a.flags.writeable and a.base is not None:
+        a = a.copy(order="K")
     a.setflags(write=False)
     return a
 
@@ -26,7 +31,10 @@ class Motion:
     """A clip on one skeleton.
 
     skeleton: the Skeleton animated.
-    rotations: (F, J, 4) local rotations, scalar-last unit quaternions (rest rotation included).
+    rotations: (F, J, 4) local rotations, scalar-last unit quaternions (rest rotation included). Stored
+        either frame-major (C order) or component-major (a transposed view of (J, 4, F) memory, each
+        joint's x, y, z and w one contiguous row over the frames, as the reader and transfer make
+        them): numpy code works on either; quat.to_component_major is free for the latter.
     root_positions: (F, 3) local translation of the root joint, file units.
     fps: frames per second (> 0).
     translations: (F, J, 3) local translations of every joint, or None. Only present when the file

@@ -33,6 +33,7 @@ __all__ = [
     "to_matrix",
     "to_component_major",
     "from_component_major",
+    "is_component_major",
 ]
 
 _AXES = {"X": 0, "Y": 1, "Z": 2}
@@ -48,11 +49,20 @@ _EULER_ORDERS = ("XYZ", "XZY", "YXZ", "YZX", "ZXY", "ZYX")
 _LAYOUT_BLOCK = 256  # frames per block when changing layout: the block stays in the CPU cache
 
 
+def is_component_major(data: np.ndarray) -> bool:
+    """Whether (F, J, k) data is a transposed view of C-ordered (J, k, F) memory."""
+    return data.ndim == 3 and data.transpose(1, 2, 0).flags.c_contiguous
+
+
 def to_component_major(data: np.ndarray, joints=None) -> np.ndarray:
     """Per-frame, per-joint data (F, J, k) -> (S, k, F) contiguous: for each joint (all, or the S joints
     listed), each component one contiguous row over the frames (k = 4 for quaternions, 3 for vectors).
-    Copied in blocks of frames, which is several times faster than one strided copy."""
+    Data already stored that way comes back as it is (all joints: the same memory) or as whole rows;
+    other data is copied in blocks of frames, several times faster than one strided copy."""
     data = np.asarray(data, dtype=np.float64)
+    if is_component_major(data):
+        planes = data.transpose(1, 2, 0)
+        return planes if joints is None else planes[list(joints)]
     f = data.shape[0]
     pick = slice(None) if joints is None else list(joints)
     count = data.shape[1] if joints is None else len(pick)
@@ -347,9 +357,13 @@ def _tait_bryan_planes(comps: tuple[np.ndarray, ...], order: str) -> tuple[np.nd
 
 
 def _planes(q: np.ndarray) -> tuple[np.ndarray, ...]:
-    """The four components of quaternions (..., 4) as contiguous arrays (...) (at least (1,))."""
-    comps = np.moveaxis(np.atleast_2d(q), -1, 0).copy()
-    return tuple(comps)
+    """The four components of quaternions (..., 4) as arrays (...) (at least (1,)) whose elements are
+    contiguous in memory: views when the components are stored apart already (component-major clips),
+    else one copy."""
+    q = np.atleast_2d(q)
+    if q.ndim == 3 and q.strides[0] == q.itemsize and q.strides[2] >= q.shape[0] * q.itemsize:
+        return tuple(q[..., c] for c in range(4))
+    return tuple(np.moveaxis(q, -1, 0).copy())
 
 
 def _tait_bryan_angles(q: np.ndarray, order: str) -> np.ndarray:

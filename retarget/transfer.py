@@ -302,7 +302,8 @@ def transfer(motion: Motion, alignment: Alignment, in_place: bool = False, check
     local[0] = _const(g[0], left_product(qt_inv))
     for j in range(1, nt):
         local[j] = _mul(g[int(tgt.parents[j])], g[j], conj_a=True)
-    local = quat.from_component_major(local)
+    local.setflags(write=False)
+    local = local.transpose(2, 0, 1)  # (F, nt, 4), stored component-major
 
     ct = al.target_convention.file_to_canonical()
     st = al.target_convention.scale

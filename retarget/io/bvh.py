@@ -377,7 +377,9 @@ def _to_motion(h: _Hierarchy, values: np.ndarray, fps: float, path: str) -> Moti
     n = len(h.names)
     skeleton = _skeleton(h, path)
     f = values.shape[0]
-    rotations = np.empty((f, n, 4))
+    # Stored component-major: each joint's x, y, z and w one contiguous row over the frames.
+    planes = np.empty((n, 4, f))
+    rotations = planes.transpose(2, 0, 1)
     offsets = skeleton.offsets
     translations = None
     animated_positions = [j for j in range(1, n) if skeleton.has_position_channels(j)]
@@ -439,7 +441,8 @@ def _to_motion(h: _Hierarchy, values: np.ndarray, fps: float, path: str) -> Moti
                                                                  degrees=True)
     if translations is not None:
         translations[:, 0] = root_positions
-    return Motion(skeleton, rotations, root_positions, fps, translations, source=path)
+    planes.setflags(write=False)
+    return Motion(skeleton, planes.transpose(2, 0, 1), root_positions, fps, translations, source=path)
 
 
 # ----- writing -------------------------------------------------------------------------------------
