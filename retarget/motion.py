@@ -139,21 +139,26 @@ def forward_kinematics(skeleton: Skeleton, rotations: np.ndarray, root_positions
                 j = int(parents[j])
         todo = sorted(need)  # parents come before their children
     slot = {j: i for i, j in enumerate(todo)}
-    # The local rotations of the joints needed, as contiguous (4, F) rows per joint.
-    local = quat.to_component_major(rotations, None if len(todo) == n else todo)
+    # The local rotations of the joints needed, as contiguous (4, F) rows per joint (the clip's own
+    # memory when it is stored that way).
+    if quat.is_component_major(rotations):
+        planes, row = quat.to_component_major(rotations), {j: j for j in todo}
+    else:
+        planes, row = quat.to_component_major(rotations, None if len(todo) == n else todo), slot
     grot = np.empty((len(todo), 4, f))
     gpos = np.empty((len(todo), 3, f))
     offsets = skeleton.offsets
     root_positions = np.asarray(root_positions, dtype=np.float64)
     for i, j in enumerate(todo):
         p = int(parents[j])
+        local = planes[row[j]]
         if p < 0:
-            grot[i] = local[i]
+            grot[i] = local
             gpos[i] = np.broadcast_to(root_positions, (f, 3)).T
             continue
         pr, pp = grot[slot[p]], gpos[slot[p]]
         t = offsets[j] if translations is None else np.asarray(translations)[:, j].T
-        _fk_joint(pr, pp, local[i], t, grot[i], gpos[i])
+        _fk_joint(pr, pp, local, t, grot[i], gpos[i])
     if joints is not None and wanted != todo:
         pick = [slot[j] for j in wanted]
         grot, gpos = grot[pick], gpos[pick]

@@ -147,10 +147,13 @@ def _source_world(motion: Motion, rot_joints, pos_joints) -> tuple[dict, dict]:
     need_pos = set(_closure(sk, pos_joints))
     tr = motion.translations
     todo = _closure(sk, list(rot_joints) + list(pos_joints))
-    locals_ = quat.to_component_major(motion.rotations, todo)
-    for i, j in enumerate(todo):
+    if quat.is_component_major(motion.rotations):
+        planes, row = quat.to_component_major(motion.rotations), {j: j for j in todo}
+    else:
+        planes, row = quat.to_component_major(motion.rotations, todo), {j: i for i, j in enumerate(todo)}
+    for j in todo:
         p = int(sk.parents[j])
-        local = locals_[i]
+        local = planes[row[j]]
         if p < 0:
             rots[j] = local
             if j in need_pos:
