@@ -184,9 +184,14 @@ def _half_angle_cos_sin(angles: np.ndarray, degrees: bool) -> tuple[np.ndarray, 
     of ulps. The angle is first reduced by whole turns k (|x| <= half a turn, so |t| <= 1); each whole
     turn flips the sign of the half-angle pair."""
     turn = 360.0 if degrees else _TWO_PI
-    turns = np.rint(angles * (1.0 / turn))
-    x = angles - turns * turn
-    x *= (np.pi / 720.0) if degrees else 0.25
+    quarter = (np.pi / 720.0) if degrees else 0.25
+    if angles.size and -0.5 * turn <= angles.min() and angles.max() <= 0.5 * turn:
+        turns = None  # nothing to reduce (the usual case)
+        x = angles * quarter
+    else:
+        turns = np.rint(angles * (1.0 / turn))
+        x = angles - turns * turn
+        x *= quarter
     t = np.tan(x, out=x)
     t2 = t * t
     inv = 1.0 + t2
@@ -195,7 +200,7 @@ def _half_angle_cos_sin(angles: np.ndarray, degrees: bool) -> tuple[np.ndarray, 
     cos *= inv
     sin = np.multiply(t, 2.0, out=t2)
     sin *= inv
-    if turns.any():
+    if turns is not None and turns.any():
         half = turns * 0.5                  # m or m + 0.5 for even or odd turns
         sign = np.floor(half)
         sign -= half
