@@ -2,12 +2,18 @@
 
 Targets (2-core machine): end to end (read clip and rig, retarget, write) <= 3x np.loadtxt of the same
 clip file; the transfer step alone >= 100,000 frames per second.
+
+Reported: end to end as apply runs it (foot contacts detected and fixed) and with contact_fix=False (the
+contact step still detects and measures), each by stage (read, retarget, write); the transfer step and
+the contact step alone; the apply command in a fresh interpreter (start-up and imports included), with
+a mapping file, without the contact fix, and matched automatically; peak Python memory.
 Run: python benchmarks/bench_transfer.py
 """
 
 from __future__ import annotations
 
 import json
+import subprocess
 import sys
 import time
 from pathlib import Path
@@ -129,10 +135,43 @@ def name_pairs(source: Skeleton, target: Skeleton) -> list[tuple[str, str]]:
     return [(n, n[4:]) for n in source.names if n[4:] in tnames]
 
 
-def main() -> dict:
-    from retarget.align import align
+def _stages(clip_path: Path, rig_path: Path, out_path: Path, mapping, contact_fix: bool) -> dict[str, float]:
+    """One end-to-end run as the apply command does it (read clip and rig, retarget, write), timed by stage."""
     from retarget.io import write_motion
     from retarget.pipeline import retarget_clip
+
+    t0 = time.perf_counter()
+    m = read_bvh(clip_path)
+    r = read_bvh(rig_path)
+    t1 = time.perf_counter()
+    res = retarget_clip(m, r, mapping, contact_fix=contact_fix)
+    t2 = time.perf_counter()
+    write_motion(out_path, res.motion)
+    t3 = time.perf_counter()
+    return {"total": t3 - t0, "read": t1 - t0, "retarget": t2 - t1, "write": t3 - t2}
+
+
+def _best_stages(repeat: int, *args) -> dict[str, float]:
+    runs = [_stages(*args) for _ in range(repeat)]
+    return min(runs, key=lambda r: r["total"])
+
+
+def _cli_seconds(args: list[str], repeat: int = 2) -> float:
+    """Wall time of the command line in a fresh interpreter (start-up and imports included)."""
+    best = float("inf")
+    for _ in range(repeat):
+        t0 = time.perf_counter()
+        subprocess.run([sys.executable, "-m", "retarget.cli", *args], check=True, capture_output=True)
+        best = min(best, time.perf_counter() - t0)
+    return best
+
+
+def main() -> dict:
+    from retarget.align import align
+    from retarget.chains import analyze_body
+    from retarget.contacts import plant_feet
+    from retarget.convention import detect_convention
+    from retarget.mapping import JointPair, Mapping, save_mapping
     from retarget.transfer import transfer
 
     clip_path, rig_path = ensure_files()
@@ -147,42 +186,60 @@ def main() -> dict:
     rig = read_bvh(rig_path)
     pairs = name_pairs(motion.skeleton, rig.skeleton)
 
-    stages: dict[str, float] = {}
-
-    def end_to_end(mapping=pairs, record=False):
-        t0 = time.perf_counter()
-        m = read_bvh(clip_path)
-        r = read_bvh(rig_path)
-        t1 = time.perf_counter()
-        res = retarget_clip(m, r, mapping, contact_fix=False)
-        t2 = time.perf_counter()
-        write_motion(out_path, res.motion)
-        t3 = time.perf_counter()
-        if record:
-            stages.update(read_s=t1 - t0, retarget_s=t2 - t1, write_s=t3 - t2)
-        return res
-
     idx = [(motion.skeleton.index(a), rig.skeleton.index(b)) for a, b in pairs]
     al = align(motion.skeleton, rig.skeleton, idx, source_motion=motion)
     transfer_s = best_of(lambda: transfer(motion, al), repeat=5)
+    # The contact step alone, as the pipeline runs it on the transferred clip.
+    sbody, tbody = analyze_body(motion.skeleton, motion), analyze_body(rig.skeleton, rig)
+    sconv = detect_convention(motion.skeleton, motion, sbody)
+    tconv = detect_convention(rig.skeleton, rig, tbody)
+    moved = transfer(motion, al)
+    contacts_s = best_of(lambda: plant_feet(motion, sbody.legs, sconv, moved, tbody.legs, tconv), repeat=3)
+    contacts_measure_s = best_of(lambda: plant_feet(motion, sbody.legs, sconv, moved, tbody.legs, tconv, fix=False),
+                                 repeat=3)
+
+    loadtxt_s = best_of(loadtxt)
+    args = (clip_path, rig_path, out_path, pairs)
+    with_fix = _best_stages(3, *args, True)
+    no_fix = _best_stages(3, *args, False)
+    auto = _stages(clip_path, rig_path, out_path, None, True)
+
+    mapping_path = DATA / "humanoid.mapping.yaml"
+    save_mapping(Mapping(pairs=[JointPair(source=a, target=b, confidence=1.0, reason="given") for a, b in pairs]),
+                 mapping_path)
+    cli = ["apply", str(clip_path), "--rig", str(rig_path), "-o", str(out_path)]
     res = {
         "source_joints": motion.skeleton.num_joints,
         "target_joints": rig.skeleton.num_joints,
         "frames": motion.num_frames,
         "pairs": len(pairs),
-        "np_loadtxt_s": best_of(loadtxt),
-        "end_to_end_s": best_of(end_to_end),
+        "np_loadtxt_s": loadtxt_s,
+        "end_to_end_s": with_fix["total"],
+        "end_to_end_over_loadtxt": with_fix["total"] / loadtxt_s,
+        "stages_s": {k: v for k, v in with_fix.items() if k != "total"},
+        "end_to_end_no_contact_fix_s": no_fix["total"],
+        "end_to_end_no_contact_fix_over_loadtxt": no_fix["total"] / loadtxt_s,
+        "stages_no_contact_fix_s": {k: v for k, v in no_fix.items() if k != "total"},
+        "end_to_end_auto_match_s": auto["total"],
         "align_s": best_of(lambda: align(motion.skeleton, rig.skeleton, idx, source_motion=motion)),
         "transfer_s": transfer_s,
         "transfer_frames_per_s": motion.num_frames / transfer_s,
-        "end_to_end_auto_match_s": best_of(lambda: end_to_end(None), repeat=1),
+        "contact_step_s": contacts_s,
+        "contact_step_measure_only_s": contacts_measure_s,
+        "cli_apply_s": _cli_seconds(cli + ["-m", str(mapping_path)]),
+        "cli_apply_no_contact_fix_s": _cli_seconds(cli + ["-m", str(mapping_path), "--no-contact-fix"]),
+        "cli_apply_auto_match_s": _cli_seconds(cli),
+        "peak_transfer_mb": peak_python_mb(lambda: transfer(motion, al)),
+        "peak_end_to_end_mb": peak_python_mb(lambda: _stages(*args, True)),
     }
-    end_to_end(record=True)
-    res.update(stages)
-    res["end_to_end_over_loadtxt"] = res["end_to_end_s"] / res["np_loadtxt_s"]
-    res["peak_transfer_mb"] = peak_python_mb(lambda: transfer(motion, al))
     out_path.unlink(missing_ok=True)
-    return {k: round(v, 3) if isinstance(v, float) else v for k, v in res.items()}
+    return _rounded(res)
+
+
+def _rounded(res):
+    if isinstance(res, dict):
+        return {k: _rounded(v) for k, v in res.items()}
+    return round(res, 3) if isinstance(res, float) else res
 
 
 if __name__ == "__main__":

@@ -459,10 +459,12 @@ def _unwrap_small(p: np.ndarray) -> np.ndarray:
     return up
 
 
-def to_euler_continuous(q: np.ndarray, order: str, degrees: bool = False) -> np.ndarray:
+def to_euler_continuous(q: np.ndarray, order: str, degrees: bool = False, *, out: np.ndarray | None = None
+                        ) -> np.ndarray:
     """Intrinsic Euler angles along axis 0 (frames) that change smoothly from frame to frame.
 
-    q: (F, ..., 4) unit quaternions. Returns (F, ..., 3).
+    q: (F, ..., 4) unit quaternions. Returns (F, ..., 3); out: optional (F, ..., 3) float64 array (a
+    strided view is fine) to write them into.
 
     Each rotation has two Euler solutions, (a, b, c) and (a + pi, pi - b, c + pi). Between consecutive
     frames we pick the one closer to the previous pick; because the map between the two solutions is an
@@ -474,18 +476,24 @@ def to_euler_continuous(q: np.ndarray, order: str, degrees: bool = False) -> np.
     q = np.asarray(q, dtype=np.float64)
     n = q.shape[0]
     if n == 0:
-        return np.empty(q.shape[:-1] + (3,))
+        return np.empty(q.shape[:-1] + (3,)) if out is None else out
+    if out is None:
+        out = np.empty(q.shape[:-1] + (3,))
     # Whole tracks (all frames) of a few rotations at a time.
     flat = q.reshape(n, -1, 4)
-    out = np.empty(flat.shape[:2] + (3,))
+    dest = out.reshape(n, -1, 3)
+    if not np.shares_memory(dest, out):  # out's layout cannot be seen as (F, K, 3): fill a copy
+        dest = np.empty(flat.shape[:2] + (3,))
     step = max(1, _BLOCK // n)
     for k in range(0, flat.shape[1], step):
-        out[:, k: k + step] = _euler_tracks(flat[:, k: k + step], order, degrees)
-    return out.reshape(q.shape[:-1] + (3,))
+        _euler_tracks(flat[:, k: k + step], order, degrees, dest[:, k: k + step])
+    if not np.shares_memory(dest, out):
+        out[...] = dest.reshape(out.shape)
+    return out
 
 
-def _euler_tracks(q: np.ndarray, order: str, degrees: bool) -> np.ndarray:
-    """to_euler_continuous of (F, K, 4) tracks, F >= 1."""
+def _euler_tracks(q: np.ndarray, order: str, degrees: bool, out: np.ndarray) -> None:
+    """to_euler_continuous of (F, K, 4) tracks, F >= 1, into out (F, K, 3)."""
     n = q.shape[0]
     # Work on contiguous planes: one array (F, ...) per component and per angle.
     a, b, c = _tait_bryan_planes(_planes(q), order)
@@ -528,14 +536,12 @@ def _euler_tracks(q: np.ndarray, order: str, degrees: bool) -> np.ndarray:
             a = np.where(parity, a + np.pi, a)
             b = np.where(parity, np.pi - b, b)
             c = np.where(parity, c + np.pi, c)
-    out = np.empty(q.shape[:-1] + (3,))
     for i, angle in enumerate((a, b, c)):
         angle = _unwrap_small(_wrap_small(angle))
         if degrees:
             np.rad2deg(angle, out=out[..., i])
         else:
             out[..., i] = angle
-    return out
 
 
 def slerp(q0: np.ndarray, q1: np.ndarray, t: np.ndarray) -> np.ndarray:

@@ -508,7 +508,14 @@ def _channel_values(motion: Motion) -> np.ndarray:
                 values[:, starts[j] + k] = src[:, "XYZ".index(c[0])]
     for order, (joints, cols) in groups.items():
         q = motion.rotations[:, joints] if len(joints) < sk.num_joints else motion.rotations
-        values[:, np.array(cols)] = quat.to_euler_continuous(q, order, degrees=True)
+        flat = [c for cs in cols for c in cs]
+        view = None
+        if flat == list(range(flat[0], flat[0] + len(flat))):  # consecutive columns: write in place
+            view = values[:, flat[0]: flat[0] + len(flat)].reshape(f, len(joints), 3)
+        if view is not None and np.shares_memory(view, values):
+            quat.to_euler_continuous(q, order, degrees=True, out=view)
+        else:
+            values[:, np.array(cols)] = quat.to_euler_continuous(q, order, degrees=True)
     return values
 
 
