@@ -202,7 +202,7 @@ def main() -> dict:
     args = (clip_path, rig_path, out_path, pairs)
     with_fix = _best_stages(3, *args, True)
     no_fix = _best_stages(3, *args, False)
-    auto = _stages(clip_path, rig_path, out_path, None, True)
+    auto = _best_stages(2, clip_path, rig_path, out_path, None, True)  # the first loads scipy.optimize
 
     mapping_path = DATA / "humanoid.mapping.yaml"
     save_mapping(Mapping(pairs=[JointPair(source=a, target=b, confidence=1.0, reason="given") for a, b in pairs]),

@@ -335,18 +335,27 @@ def _matrix_entry(comps: tuple[np.ndarray, ...], r: int, c: int) -> np.ndarray:
     comps: the quaternions' (x, y, z, w) components, each (...)."""
     x, y, z, w = comps
     xyz = (x, y, z)
+    # In place, with the same roundings as the expressions in to_matrix.
     if r == c:
         a, b = (xyz[i] for i in range(3) if i != r)
-        return 1 - 2 * (a * a + b * b)
+        out = a * a
+        out += b * b
+        out *= 2.0
+        return np.subtract(1.0, out, out=out)  # 1 - 2 (a a + b b)
     # Off the diagonal: 2 * (q_r q_c -/+ q_o w), the sign by the entry's side (see to_matrix).
     o = 3 - r - c
     lo, hi = min(r, c), max(r, c)
-    prod = xyz[lo] * xyz[hi]
+    out = xyz[lo] * xyz[hi]
     other = xyz[o] * w
     # to_matrix: m01 = xy - zw, m02 = xz + yw, m12 = yz - xw; the transposes flip the sign.
     minus_above = (lo, hi) in ((0, 1), (1, 2))
     minus = minus_above if r < c else not minus_above
-    return 2 * (prod - other) if minus else 2 * (prod + other)
+    if minus:
+        out -= other
+    else:
+        out += other
+    out *= 2.0
+    return out
 
 
 def _tait_bryan_planes(comps: tuple[np.ndarray, ...], order: str) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -536,12 +545,13 @@ def _euler_tracks(q: np.ndarray, order: str, degrees: bool, out: np.ndarray) -> 
             a = np.where(parity, a + np.pi, a)
             b = np.where(parity, np.pi - b, b)
             c = np.where(parity, c + np.pi, c)
-    for i, angle in enumerate((a, b, c)):
-        angle = _unwrap_small(_wrap_small(angle))
-        if degrees:
-            np.rad2deg(angle, out=out[..., i])
-        else:
-            out[..., i] = angle
+    angles = [_unwrap_small(_wrap_small(angle)) for angle in (a, b, c)]
+    if degrees:
+        angles = [np.rad2deg(angle, out=angle) for angle in angles]
+    # Interleave into out a few hundred frames at a time, so the rows written stay in the CPU cache.
+    for f0 in range(0, n, _LAYOUT_BLOCK):
+        for i, angle in enumerate(angles):
+            out[f0: f0 + _LAYOUT_BLOCK, :, i] = angle[f0: f0 + _LAYOUT_BLOCK]
 
 
 def slerp(q0: np.ndarray, q1: np.ndarray, t: np.ndarray) -> np.ndarray:
