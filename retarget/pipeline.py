@@ -204,6 +204,12 @@ def _side(sk: Skeleton, conv: Convention, ref: str, leg: float) -> SideInfo:
                     metres_per_unit=conv.metres_per_unit, reference_pose=ref, leg_length_m=round(leg, 6))
 
 
+def _all_finite(a: np.ndarray) -> bool:
+    """Every value finite: one sum (finite unless something is not, or it overflows), then the exact
+    check only when it is not."""
+    return bool(np.isfinite(np.add.reduce(a, axis=None))) or bool(np.all(np.isfinite(a)))
+
+
 # ----- the pipeline -----------------------------------------------------------------------------------
 
 def retarget_clip(clip, rig, mapping=None, **options) -> Result:
@@ -287,7 +293,7 @@ def retarget_clip(clip, rig, mapping=None, **options) -> Result:
         if row.direction_error_max_deg is not None and row.direction_error_max_deg > _WARN_DEG:
             warnings.append(f"{row.target} points up to {row.direction_error_max_deg:.1f} deg away from "
                             f"{row.source}")
-    if not np.all(np.isfinite(out.rotations)) or not np.all(np.isfinite(out.root_positions)):
+    if not (_all_finite(out.rotations) and _all_finite(out.root_positions)):
         raise OptionError("the result has non-finite values; check the mapping and conventions",
                           path=source_full.source)
 
