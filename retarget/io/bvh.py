@@ -545,7 +545,7 @@ def _head_table(sep: bool) -> np.ndarray:
     return out.reshape(-1, 4).view("<u4").ravel()
 
 
-# Lookup tables for the fixed-decimal formatter (built once, 50 kB in all).
+# Lookup tables for the fixed-decimal formatter (built once, about 60 kB in all).
 _FRAC4 = _pow10_ascii(4)                      # last four fraction digits
 # ones digit, '.', first two fraction digits; index ones * 100 + first two fraction digits
 _ONES_POINT_FRAC2 = (48 + np.arange(1000, dtype=np.uint32) // 100) | np.uint32(46 << 8) | \
@@ -554,7 +554,7 @@ _HEAD_SEP = _head_table(True)                 # separator, sign and up to two mo
 _HEAD = _head_table(False)                    # sign and up to three more integer digits
 # Base-1000 chunks: 2 part + neg -> leading chunk with its sign, 2000 + part -> inner chunk "\0ddd", 3000 -> empty.
 _CHUNKS = np.concatenate([_HEAD, _pow10_ascii(3), [0]]).astype("<u4")
-_FAST_LIMIT = 1e15                            # |value| * 1e6 below this: digits by int32 arithmetic
+_FAST_LIMIT = 1e15                            # |value| * 1e6 below this: digits by integer arithmetic
 
 
 _BLOCK_VALUES = 1 << 14   # values formatted per block: the block's work arrays stay in the CPU cache
