@@ -8,6 +8,7 @@ end, and write their output atomically. A bad clip becomes a failed row; it neve
 from __future__ import annotations
 
 import csv
+import functools
 import glob
 import hashlib
 import io
@@ -190,6 +191,7 @@ def plan_batch(inputs: Iterable[str], rig: str | os.PathLike, out_dir: str | os.
     user_mapping_text = None if mapping is None else Path(mapping).read_text()
 
     groups: dict[str, tuple[Any, str]] = {}  # skeleton signature -> (Mapping or None, note)
+    group_hash: dict[str, bytes] = {}  # skeleton signature -> digest of its mapping's text
     jobs: list[ClipJob] = []
     rows: list[ClipRow] = []
     for path, rel in clips:
@@ -219,8 +221,10 @@ def plan_batch(inputs: Iterable[str], rig: str | os.PathLike, out_dir: str | os.
                     rows.append(ClipRow(clip=str(rel), output=str(out), status="failed", error=str(exc)))
                     continue
         group_mapping, note = groups[sig]
-        mapping_text = "" if group_mapping is None else format_mapping(group_mapping)
-        digest = _sha(_HASH_VERSION.encode(), path.read_bytes(), rig_bytes, mapping_text.encode(), opts_bytes)
+        if sig not in group_hash:
+            text = "" if group_mapping is None else format_mapping(group_mapping)
+            group_hash[sig] = hashlib.sha256(text.encode()).digest()
+        digest = _sha(_HASH_VERSION.encode(), path.read_bytes(), rig_bytes, group_hash[sig], opts_bytes)
         key = str(out.relative_to(out_dir))
         page = str(out.with_suffix(".html")) if previews else None
         if not force and out.exists() and manifest.get(key) == digest and (page is None or Path(page).exists()):
@@ -232,6 +236,14 @@ def plan_batch(inputs: Iterable[str], rig: str | os.PathLike, out_dir: str | os.
 
 # ----- running ---------------------------------------------------------------------------------------
 
+@functools.lru_cache(maxsize=4)
+def _read_rig(path: str, mtime_ns: int):
+    """The rig, read once per worker process (and again if the file changes)."""
+    from .io import read_motion
+
+    return read_motion(path)
+
+
 def process_clip(job: ClipJob) -> ClipRow:
     """Run one clip end to end (in a worker). Never raises for a bad clip: the row says what failed."""
     t0 = time.perf_counter()
@@ -241,7 +253,7 @@ def process_clip(job: ClipJob) -> ClipRow:
         from .pipeline import retarget_clip
 
         clip = read_motion(job.clip)
-        rig = read_motion(job.rig)
+        rig = _read_rig(job.rig, os.stat(job.rig).st_mtime_ns)
         result = retarget_clip(clip, rig, mapping=job.mapping, **job.options)
         Path(job.output).parent.mkdir(parents=True, exist_ok=True)
         template = job.rig if Path(job.rig).suffix.lower() in (".gltf", ".glb") else None
