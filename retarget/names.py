@@ -2,7 +2,7 @@
 
 Names are split at separators, camelCase humps and digits, then side markers are recognised in the
 common styles: words (Left, right, LeftHand, hand_left, leftarm), letters as prefix or suffix (L_, _r,
-.L, lShin, HandR), letters standing alone between separators (Bip01 L Thigh, CC_Base_L_Hand), short forms
+.L, lShin, HandR), letters standing alone between separators (Rig01 L Thigh, Ch_Base_L_Hand), short forms
 (Lf, Rt, Lt, Lft, Rgt), and a letter glued to a known body word (lfemur, rtibia).
 
 Body words are gathered into concepts (``concepts_of``): the anatomical part a joint moves, whatever the
@@ -40,7 +40,7 @@ _CAMEL = re.compile(r"[A-Z]+(?=[A-Z][a-z])|[A-Z]?[a-z]+|[A-Z]+|\d+")
 
 @lru_cache(maxsize=8192)
 def _parts(name: str) -> tuple[tuple[str, ...], ...]:
-    """Tokens grouped by separator-delimited part: "Bip01_L_Thigh" -> (("bip", "01"), ("l",), ("thigh",))."""
+    """Tokens grouped by separator-delimited part: "Rig01_L_Thigh" -> (("rig", "01"), ("l",), ("thigh",))."""
     out = []
     for part in _SPLIT.split(name):
         if part:
@@ -97,7 +97,7 @@ def _side_marks(name: str) -> tuple[tuple[int, str, str], ...]:
                     marks.append((i, side, "letter"))
                 elif k == 0 and k + 1 < len(part) and not part[k + 1].isdigit() and len(part[k + 1]) > 2 \
                         and (part[k + 1] in BODY_WORDS or part[k + 1] in _COMPOUND_WORDS):
-                    # camelCase side letter in front of a body word inside the name: "Bip01_lHand".
+                    # camelCase side letter in front of a body word inside the name: "Rig01_lHand".
                     marks.append((i, side, "letter"))
             else:
                 g = _glued_side(t)
@@ -257,7 +257,7 @@ def _compatible(a: str, b: str) -> bool:
 
 
 # Words that carry no meaning of their own in joint names (rig prefixes, "joint", numbering letters).
-_NOISE = frozenset("joint jnt bone bn bip biped def deform mixamorig base cc node grp ctrl drv".split())
+_NOISE = frozenset("joint jnt bone bn rig def deform base node grp ctrl drv".split())
 
 
 @lru_cache(maxsize=8192)

@@ -45,7 +45,7 @@ def test_awkward_names_survive(tmp_path):
     """Names with spaces, colons, brackets and quotes (legal in some exporters) are quoted as needed."""
     a, _ = make_variant("snake")
     names = list(a.names)
-    names[0] = "Bip01 Pelvis"
+    names[0] = "Rig01 Pelvis"
     names[1] = "rig:spine [1]"
     names[2] = "chest, 'upper'"
     a2 = a.renamed(names)

@@ -15,9 +15,9 @@ from retarget.names import concepts_of, is_ambiguous, name_affinity, side_of_nam
 
 def test_tokenize_splits_separators_camel_humps_and_digits():
     assert tokenize("LeftUpLeg_02") == ("left", "up", "leg", "02")
-    assert tokenize("Bip01 L Thigh") == ("bip", "01", "l", "thigh")
+    assert tokenize("Rig01 L Thigh") == ("rig", "01", "l", "thigh")
     assert tokenize("spine.001") == ("spine", "001")
-    assert tokenize("mixamorig:LeftHand") == ("mixamorig", "left", "hand")
+    assert tokenize("char:LeftHand") == ("char", "left", "hand")
     assert tokenize("RT_UPPERARM") == ("rt", "upperarm")
 
 
@@ -26,7 +26,7 @@ def test_tokenize_splits_separators_camel_humps_and_digits():
     ("hand_l", "left"), ("Hand_R", "right"), ("hand.L", "left"), ("foot.R", "right"),  # suffix letters
     ("L_Hand", "left"), ("r_knee", "right"), ("lShldr", "left"), ("rButtock", "right"),  # prefix letters
     ("HandR", "right"), ("ThighL", "left"),                                     # glued suffix letter
-    ("Bip01 L Thigh", "left"), ("CC_Base_R_Hand", "right"),                     # letter inside the name
+    ("Rig01 L Thigh", "left"), ("Ch_Base_R_Hand", "right"),                     # letter inside the name
     ("LfHand", "left"), ("RT_UPPERARM", "right"), ("ARM_UPPER_LF", "left"), ("Lt_Shin", "left"),
     ("lfemur", "left"), ("rtibia", "right"), ("lhipjoint", "left"), ("ltoes", "left"),  # glued letter
     ("leftarm", "left"), ("righthand", "right"),                               # glued word
@@ -47,14 +47,14 @@ def test_no_side_where_the_name_has_none(name):
 def test_strip_side_keeps_the_body_words():
     assert strip_side("lShldr") == ("shldr",)
     assert strip_side("Hand_R") == ("hand",)
-    assert strip_side("Bip01 L Thigh") == ("bip", "01", "thigh")
+    assert strip_side("Rig01 L Thigh") == ("rig", "01", "thigh")
     assert strip_side("lfemur") == ("femur",)
     assert strip_side("leftarm") == ("arm",)
     assert strip_side("Spine_L1") == ("spine", "l", "1")
 
 
 @pytest.mark.parametrize("names,concept", [
-    (["thigh_l", "LeftUpLeg", "UpperLeg_L", "lfemur", "LEG_UPPER_LF", "lThigh", "Bip01 L Thigh"], "thigh"),
+    (["thigh_l", "LeftUpLeg", "UpperLeg_L", "lfemur", "LEG_UPPER_LF", "lThigh", "Rig01 L Thigh"], "thigh"),
     (["calf_l", "LeftLowerLeg", "LowerLeg_L", "ltibia", "shin.L", "l_knee", "LEG_LOWER_LF"], "shin"),
     (["foot_l", "LeftAnkle", "l_talocrural", "lfoot"], "foot"),
     (["ball_l", "LeftToeBase", "Toes_L", "ltoes", "l_metatarsophalangeal_2"], "toe"),
