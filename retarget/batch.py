@@ -16,7 +16,7 @@ import json
 import os
 import time
 from concurrent.futures import Executor, Future, ProcessPoolExecutor, wait, FIRST_COMPLETED
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any, Callable, Iterable
 

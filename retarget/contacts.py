@@ -46,7 +46,7 @@ import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, model_validator
 
 from . import quat
-from .errors import RetargetError, SkeletonError
+from .errors import RetargetError, SkeletonError, options_from
 
 __all__ = [
     "ContactSettings",
@@ -139,20 +139,11 @@ class ContactSettings(BaseModel):
 
 
 def _settings(settings: ContactSettings | dict | None) -> ContactSettings:
-    from pydantic import ValidationError
-
-    from .errors import OptionError
-
     if settings is None:
         return ContactSettings()
     if isinstance(settings, ContactSettings):
         return settings
-    try:
-        return ContactSettings(**settings)
-    except ValidationError as exc:
-        first = exc.errors()[0]
-        where = ".".join(str(p) for p in first.get("loc", ())) or "contact settings"
-        raise OptionError(f"contact option {where}: {first.get('msg')}") from None
+    return options_from(ContactSettings, settings, "contact option")
 
 
 # ----- data --------------------------------------------------------------------------------------------

@@ -13,6 +13,7 @@ __all__ = [
     "SkeletonError",
     "MappingError",
     "OptionError",
+    "options_from",
 ]
 
 
@@ -49,3 +50,16 @@ class MappingError(RetargetError):
 
 class OptionError(RetargetError):
     """A user option outside its allowed range."""
+
+
+def options_from(model, values: dict, label: str):
+    """Build the pydantic options ``model`` from ``values``; the first problem becomes an OptionError
+    naming the option ("<label> <name>: <what is wrong>")."""
+    from pydantic import ValidationError
+
+    try:
+        return model(**values)
+    except ValidationError as exc:
+        first = exc.errors()[0]
+        where = ".".join(str(p) for p in first.get("loc", ())) or "(all)"
+        raise OptionError(f"{label} {where}: {first.get('msg', 'invalid value')}") from None

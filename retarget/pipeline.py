@@ -16,13 +16,13 @@ from dataclasses import dataclass
 from typing import Any, Literal
 
 import numpy as np
-from pydantic import BaseModel, ConfigDict, Field, ValidationError
+from pydantic import BaseModel, ConfigDict, Field
 
 from .align import Alignment, align
 from .chains import analyze_body
 from .contacts import ContactReport, plant_feet
 from .convention import Convention, detect_convention
-from .errors import MappingError, OptionError
+from .errors import MappingError, OptionError, options_from
 from .motion import Motion
 from .skeleton import Skeleton
 from .timing import resample, select_frames
@@ -137,12 +137,7 @@ def _as_motion(obj, what: str) -> Motion:
 
 
 def _options(options: dict) -> RetargetOptions:
-    try:
-        return RetargetOptions(**options)
-    except ValidationError as exc:
-        err = exc.errors()[0]
-        where = ".".join(str(p) for p in err.get("loc", ())) or "options"
-        raise OptionError(f"option {where}: {err.get('msg', 'invalid value')}") from None
+    return options_from(RetargetOptions, options, "option")
 
 
 def _mapping_for(mapping, source: Skeleton, target: Skeleton, smotion: Motion, tmotion: Motion | None,

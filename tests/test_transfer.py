@@ -15,13 +15,13 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from retarget import quat
-from retarget.align import align, standing_height, reference_pose
+from retarget.align import align
 from retarget.chains import analyze_body
 from retarget.motion import Motion
 from retarget.skeleton import Skeleton
 from retarget.transfer import remove_travel, transfer, transfer_world
 
-from bodies import (BODY, DROPPED, HEIGHT, INDEX, NAMES, N, OFFSETS, build_rig, canonical_world, capture_spec,
+from bodies import (DROPPED, HEIGHT, INDEX, NAMES, N, OFFSETS, build_rig, canonical_world, capture_spec,
                     character_spec, random_pose, render, rotation_angles, segment_angles, summary,
                     truth_pairs, walk)
 

@@ -211,27 +211,16 @@ def read_bvh(path: str | os.PathLike, fps: float | None = None) -> Motion:
     """
     path = str(path)
     # Only the text up to the motion header is parsed in Python; numpy reads the numbers from the file
-    # itself. So read the head in pieces until the 'Frame Time' line and a little beyond.
-    try:
-        with open(path, "rb") as fh:
-            data = fh.read(1 << 16)
-            if b"\x00" in data[:4096]:
-                raise BVHError("not a BVH file: binary content", path=path)
-            while True:
-                k = data.find(b"Frame Time")
-                nl = data.find(b"\n", k) if k >= 0 else -1
-                if nl >= 0 and len(data) >= nl + 4096:
-                    break
-                more = fh.read(max(1 << 16, len(data)))
-                if not more:
-                    break
-                data += more
-    except FileNotFoundError:
-        raise BVHError("file not found", path=path) from None
-    except IsADirectoryError:
-        raise BVHError("is a folder, expected a BVH file", path=path) from None
-    except OSError as exc:
-        raise BVHError(f"cannot read: {exc.strerror}", path=path) from None
+    # itself. So read the head until the 'Frame Time' line and a little beyond.
+
+    def enough(data: bytes) -> bool:
+        k = data.find(b"Frame Time")
+        nl = data.find(b"\n", k) if k >= 0 else -1
+        return nl >= 0 and len(data) >= nl + 4096
+
+    data = _read_head(path, enough)
+    k = data.find(b"Frame Time")
+    nl = data.find(b"\n", k) if k >= 0 else -1
     if nl >= 0 and re.search(rb"\S", data[nl + 1: nl + 4096]) is not None:
         return parse_bvh(data[: nl + 1].decode("utf-8", errors="replace"), path=path, fps=fps,
                          _from_file=True, _full=lambda: _read_text(path))
@@ -239,9 +228,27 @@ def read_bvh(path: str | os.PathLike, fps: float | None = None) -> Motion:
 
 
 def _read_text(path: str) -> str:
+    return _read_head(path, lambda data: False).decode("utf-8", errors="replace")
+
+
+def _read_head(path: str, enough) -> bytes:
+    """The file's bytes from the start, read in growing blocks until ``enough(data)`` or the end; file
+    problems become BVHErrors naming the file."""
     try:
         with open(path, "rb") as fh:
-            return fh.read().decode("utf-8", errors="replace")
+            data = fh.read(1 << 16)
+            if b"\x00" in data[:4096]:
+                raise BVHError("not a BVH file: binary content", path=path)
+            while not enough(data):
+                more = fh.read(max(1 << 16, len(data)))
+                if not more:
+                    break
+                data += more
+            return data
+    except FileNotFoundError:
+        raise BVHError("file not found", path=path) from None
+    except IsADirectoryError:
+        raise BVHError("is a folder, expected a BVH file", path=path) from None
     except OSError as exc:
         raise BVHError(f"cannot read: {exc.strerror}", path=path) from None
 
@@ -343,22 +350,9 @@ def _body_text(text: str, full, pos: int) -> str:
 def read_bvh_skeleton(path: str | os.PathLike) -> Skeleton:
     """Only the hierarchy of a BVH file, without reading its frames."""
     path = str(path)
-    chunks: list[bytes] = []
-    try:
-        with open(path, "rb") as fh:
-            while True:
-                block = fh.read(1 << 16)
-                chunks.append(block)
-                if not block or re.search(rb"^[ \t]*MOTION[ \t]*\r?$", b"".join(chunks[-2:]),
-                                          flags=re.MULTILINE | re.IGNORECASE):
-                    break
-    except FileNotFoundError:
-        raise BVHError("file not found", path=path) from None
-    except IsADirectoryError:
-        raise BVHError("is a folder, expected a BVH file", path=path) from None
-    except OSError as exc:
-        raise BVHError(f"cannot read: {exc.strerror}", path=path) from None
-    text = b"".join(chunks).decode("utf-8", errors="replace")
+    motion_line = re.compile(rb"^[ \t]*MOTION[ \t]*\r?$", flags=re.MULTILINE | re.IGNORECASE)
+    data = _read_head(path, lambda d: motion_line.search(d) is not None)
+    text = data.decode("utf-8", errors="replace")
     m = re.search(r"^[ \t]*MOTION[ \t]*\r?$", text, flags=re.MULTILINE | re.IGNORECASE)
     h, _ = _parse_hierarchy((text if m is None else text[: m.end()]).splitlines(), path)
     return _skeleton(h, path)
