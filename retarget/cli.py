@@ -66,6 +66,16 @@ def _read_with_convention(path: str, fps, up, forward, unit_scale):
     return motion, body, detect_convention(motion.skeleton, motion, body).with_overrides(up, forward, unit_scale)
 
 
+def _rig_options(func):
+    """--rig and -m/--mapping, as every command that retargets takes them."""
+    func = click.option("-m", "--mapping", default=None, type=click.Path(dir_okay=False),
+                        help="Reviewed joint mapping file (YAML); proposed from the two skeletons when "
+                             "left out.")(func)
+    return click.option("--rig", required=True, type=click.Path(dir_okay=False),
+                        help="The character rig: a BVH file (its zero pose is the rest pose) or a glTF "
+                             "file (.gltf/.glb).")(func)
+
+
 @main.command("inspect")
 @click.argument("file", type=click.Path(dir_okay=False))
 @click.option("--json", "as_json", is_flag=True, help="Print the summary as JSON.")
@@ -262,10 +272,7 @@ def _format_contacts(s, flags, width: int) -> str:
 
 @main.command("preview")
 @click.argument("clip", type=click.Path(dir_okay=False))
-@click.option("--rig", required=True, type=click.Path(dir_okay=False),
-              help="The character: a BVH file (its zero pose is the rest pose) or a glTF file.")
-@click.option("-m", "--mapping", default=None, type=click.Path(dir_okay=False),
-              help="Joint mapping file; proposed from the two skeletons when omitted.")
+@_rig_options
 @click.option("-o", "--output", required=True, type=click.Path(dir_okay=False),
               help="The page to write (one self-contained HTML file).")
 @click.option("--plots", "plots_dir", default=None, type=click.Path(file_okay=False),
@@ -291,9 +298,7 @@ def preview_cmd(clip: str, rig: str, mapping: str | None, output: str, plots_dir
             click.echo(f"wrote {path}")
 @main.command("batch")
 @click.argument("inputs", nargs=-1, required=True)
-@click.option("--rig", required=True, type=click.Path(dir_okay=False), help="Character rig (BVH or glTF).")
-@click.option("-m", "--mapping", type=click.Path(dir_okay=False), default=None,
-              help="Reviewed mapping file; without it one is matched per source skeleton.")
+@_rig_options
 @click.option("-o", "--output", "out_dir", required=True, type=click.Path(file_okay=False),
               help="Output folder; mirrors the input folders.")
 @click.option("--workers", type=int, default=None, help="Local worker processes (default: one per core).")
@@ -387,12 +392,9 @@ def _frame_range(text: str | None) -> tuple[int | None, int | None] | None:
 
 @main.command("apply")
 @click.argument("clip", type=click.Path(dir_okay=False))
-@click.option("--rig", required=True, type=click.Path(dir_okay=False),
-              help="Character rig (BVH; its zero pose is the rest pose).")
-@click.option("-m", "--mapping", default=None, type=click.Path(dir_okay=False),
-              help="Joint mapping file; matched automatically when left out.")
+@_rig_options
 @click.option("--no-contact-fix", is_flag=True, help="Leave foot contacts as the transfer makes them.")
-@click.option("-o", "--output", required=True, type=click.Path(dir_okay=False), help="Output clip (.bvh).")
+@click.option("-o", "--output", required=True, type=click.Path(dir_okay=False), help="Output clip (.bvh, .gltf or .glb).")
 @click.option("--in-place", is_flag=True, help="Take the horizontal root travel out.")
 @click.option("--root-scale", type=float, default=None, metavar="K",
               help="Rig metres per source metre for root motion (default: leg-length ratio).")
