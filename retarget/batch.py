@@ -114,6 +114,12 @@ def find_clips(inputs: Iterable[str]) -> list[tuple[Path, Path]]:
                 except ValueError:
                     rel = Path(q.name)
                 found.setdefault(q.resolve(), rel)
+    by_name: dict[Path, Path] = {}
+    for path, rel in found.items():
+        other = by_name.setdefault(rel.with_suffix(""), path)
+        if other != path:
+            raise RetargetError(f"two clips would write the same output {rel.with_suffix('')}: {other} and "
+                                f"{path}; give their common parent folder instead", path=str(path))
     return sorted(((path, rel) for path, rel in found.items()), key=lambda t: str(t[1]))
 
 
@@ -159,6 +165,15 @@ def _output_path(out_dir: Path, relative: Path, rig: Path, suffix: str | None) -
     return (out_dir / relative).with_suffix(ext)
 
 
+def _previous_rows(out_dir: Path) -> dict[str, "ClipRow"]:
+    """Rows of the last report in the folder (done clips only), so skipped clips keep their figures."""
+    try:
+        data = json.loads((out_dir / REPORT_JSON).read_text())
+        return {r["clip"]: ClipRow(**r) for r in data.get("rows", []) if r.get("status") in ("done", "skipped")}
+    except (FileNotFoundError, ValueError, TypeError, KeyError):
+        return {}
+
+
 def _load_manifest(out_dir: Path) -> dict[str, str]:
     try:
         return json.loads((out_dir / MANIFEST_NAME).read_text())
@@ -188,7 +203,15 @@ def plan_batch(inputs: Iterable[str], rig: str | os.PathLike, out_dir: str | os.
     rig_bytes = rig.read_bytes()
     opts_bytes = json.dumps(options, sort_keys=True, default=str).encode()
     manifest = {} if force else _load_manifest(out_dir)
-    user_mapping_text = None if mapping is None else Path(mapping).read_text()
+    previous = {} if force else _previous_rows(out_dir)
+    user_mapping_text = None
+    if mapping is not None:
+        try:
+            user_mapping_text = Path(mapping).read_text(encoding="utf-8")
+        except FileNotFoundError:
+            raise MappingError("mapping file not found", path=str(mapping)) from None
+        except (OSError, UnicodeDecodeError) as exc:
+            raise MappingError(f"cannot read the mapping file: {exc}", path=str(mapping)) from None
 
     groups: dict[str, tuple[Any, str]] = {}  # skeleton signature -> (Mapping or None, note)
     group_hash: dict[str, bytes] = {}  # skeleton signature -> digest of its mapping's text
@@ -228,7 +251,10 @@ def plan_batch(inputs: Iterable[str], rig: str | os.PathLike, out_dir: str | os.
         key = str(out.relative_to(out_dir))
         page = str(out.with_suffix(".html")) if previews else None
         if not force and out.exists() and manifest.get(key) == digest and (page is None or Path(page).exists()):
-            rows.append(ClipRow(clip=str(rel), output=str(out), status="skipped", mapping=note))
+            before = previous.get(str(rel))
+            row = before.model_copy(update={"status": "skipped"}) if before else ClipRow(
+                clip=str(rel), output=str(out), status="skipped", mapping=note)
+            rows.append(row)
             continue
         jobs.append(ClipJob(str(path), str(rel), str(out), str(rig), group_mapping, options, digest, note, page))
     return jobs, rows
@@ -308,6 +334,7 @@ def run_batch(jobs: list[ClipJob], out_dir: str | os.PathLike, executor: Executo
         executor = ProcessPoolExecutor(max_workers=workers or os.cpu_count() or 1)
     futures: dict[Future, ClipJob] = {}
     interrupted = False
+    saved = float("-inf")
     try:
         for job in jobs:
             futures[executor.submit(process_clip, job)] = job
@@ -324,7 +351,11 @@ def run_batch(jobs: list[ClipJob], out_dir: str | os.PathLike, executor: Executo
                 rows[job.relative] = row
                 if row.status == "done":
                     manifest[str(Path(job.output).relative_to(out_dir))] = job.input_hash
-                    atomic_write(out_dir / MANIFEST_NAME, json.dumps(manifest, indent=1, sort_keys=True).encode())
+                    # At most once a second (and once at the end): a big library must not rewrite it
+                    # after every clip.
+                    if time.perf_counter() - saved >= 1.0:
+                        _save_manifest(out_dir, manifest)
+                        saved = time.perf_counter()
                 if on_row:
                     on_row(row)
     except KeyboardInterrupt:
@@ -334,6 +365,7 @@ def run_batch(jobs: list[ClipJob], out_dir: str | os.PathLike, executor: Executo
     finally:
         if own:
             executor.shutdown(wait=True, cancel_futures=True)
+        _save_manifest(out_dir, manifest)
     for job in jobs:
         if job.relative not in rows:
             rows[job.relative] = ClipRow(clip=job.relative, output=job.output, status="cancelled",
@@ -349,6 +381,10 @@ def run_batch(jobs: list[ClipJob], out_dir: str | os.PathLike, executor: Executo
     if interrupted:
         raise KeyboardInterrupt
     return report
+
+
+def _save_manifest(out_dir: Path, manifest: dict[str, str]) -> None:
+    atomic_write(out_dir / MANIFEST_NAME, json.dumps(manifest, indent=1, sort_keys=True).encode())
 
 
 _CSV_FIELDS = ["clip", "output", "status", "frames", "seconds", "pose_error_mean_deg", "pose_error_max_deg",

@@ -12,7 +12,7 @@ import time
 
 import click
 
-from .errors import RetargetError
+from .errors import OptionError, RetargetError
 
 
 def _friendly(func):
@@ -315,8 +315,12 @@ def preview_cmd(clip: str, rig: str, mapping: str | None, output: str, plots_dir
 def batch_cmd(inputs, rig, mapping, out_dir, workers, cluster, force, no_contact_fix, in_place, fmt, previews,
               quiet):
     """Retarget every clip under INPUTS (folders or glob patterns) onto one rig."""
-    from .batch import plan_batch
+    from pathlib import Path
 
+    from .batch import REPORT_CSV, plan_batch
+
+    if workers is not None and workers < 1:
+        raise OptionError(f"--workers must be at least 1, got {workers}")
     options = {"contact_fix": not no_contact_fix, "in_place": in_place}
     executor, client = None, None
     if cluster:
@@ -326,7 +330,7 @@ def batch_cmd(inputs, rig, mapping, out_dir, workers, cluster, force, no_contact
             raise RetargetError('--cluster needs dask.distributed: pip install "retarget[cluster]"') from None
         try:
             client = Client(cluster, timeout="10s")
-        except (OSError, TimeoutError) as exc:
+        except (OSError, TimeoutError, ValueError) as exc:
             raise RetargetError(f"cannot reach the scheduler at {cluster}: {exc}") from None
         executor = client.get_executor()
     try:
@@ -339,8 +343,9 @@ def batch_cmd(inputs, rig, mapping, out_dir, workers, cluster, force, no_contact
     finally:
         if client is not None:
             client.close()
-    click.echo(f"{report.done} done, {report.skipped} up to date, {report.failed} failed"
-               f" ({report.clips} clips, {report.seconds:.1f} s); report: {out_dir}/batch_report.csv")
+    cancelled = f", {report.cancelled} cancelled" if report.cancelled else ""
+    click.echo(f"{report.done} done, {report.skipped} up to date, {report.failed} failed{cancelled}"
+               f" ({report.clips} clips, {report.seconds:.1f} s); report: {Path(out_dir) / REPORT_CSV}")
     for row in report.rows:
         if row.status == "failed":
             click.echo(f"  failed  {row.clip}: {row.error}", err=True)
@@ -433,6 +438,7 @@ def apply_cmd(clip: str, rig: str, mapping: str | None, no_contact_fix: bool, ou
     Path(output).parent.mkdir(parents=True, exist_ok=True)
     write_motion(output, result.motion, template=template)
     if report_path:
+        Path(report_path).parent.mkdir(parents=True, exist_ok=True)
         atomic_write(report_path, (json.dumps(result.report.model_dump(), indent=2) + "\n").encode())
     click.echo(_format_apply(result.report, output))
 

@@ -140,6 +140,20 @@ def _options(options: dict) -> RetargetOptions:
     return options_from(RetargetOptions, options, "option")
 
 
+def _joint_name(value, skeleton: Skeleton, entry: int, side: str) -> str:
+    """A joint given by name or index, checked against the skeleton."""
+    if isinstance(value, str):
+        return value
+    try:
+        index = int(value)
+    except (TypeError, ValueError):
+        raise MappingError(f"mapping entry {entry}: {side} joint must be a name or an index, got {value!r}") \
+            from None
+    if not 0 <= index < skeleton.num_joints:
+        raise MappingError(f"mapping entry {entry}: {side} joint index {index} is outside 0..{skeleton.num_joints - 1}")
+    return skeleton.names[index]
+
+
 def _mapping_for(mapping, source: Skeleton, target: Skeleton, smotion: Motion, tmotion: Motion | None,
                  bodies: tuple = (None, None)):
     """The Mapping to use and its (source index, target index) pairs.
@@ -158,13 +172,14 @@ def _mapping_for(mapping, source: Skeleton, target: Skeleton, smotion: Motion, t
         m = mapping
     else:
         items = []
+        if isinstance(mapping, dict):
+            mapping = list(mapping.items())
         for k, item in enumerate(mapping):
             try:
                 s, t = item[0], item[1]
             except (TypeError, IndexError, KeyError):
                 raise MappingError(f"mapping entry {k}: expected a (source, target) pair, got {item!r}") from None
-            s = source.names[int(s)] if not isinstance(s, str) else s
-            t = target.names[int(t)] if not isinstance(t, str) else t
+            s, t = (_joint_name(v, sk, k, side) for v, sk, side in ((s, source, "source"), (t, target, "target")))
             items.append(JointPair(source=s, target=t, confidence=1.0, reason="given"))
         m = Mapping(pairs=items, source_file=source.source, target_file=target.source)
     return m, m.index_pairs(source, target)
@@ -172,22 +187,50 @@ def _mapping_for(mapping, source: Skeleton, target: Skeleton, smotion: Motion, t
 
 # ----- report -----------------------------------------------------------------------------------------
 
-def _fidelity(al: Alignment, checks: dict) -> list[JointFidelity]:
-    """Per mapped joint: the angle between its bone span and the source span after transfer, how far aim
-    correction turned it and bent the joints inside its span, in degrees (transfer's per-span checks)."""
-    spans = {sgm.start: sgm for sgm in al.segments}
+def _span_directions(motion: Motion, starts: list[int], ends: list[int], conv: Convention) -> np.ndarray:
+    """(F, S, 3) unit directions, canonical space, from each start joint to its end joint."""
+    from .align import positions_to_canonical
+    from .motion import forward_kinematics
+
+    joints = sorted(set(starts) | set(ends))
+    col = {j: i for i, j in enumerate(joints)}
+    _, pos = forward_kinematics(motion.skeleton, motion.rotations, motion.root_positions,
+                                motion.translations, joints=joints)
+    pos = positions_to_canonical(pos, conv)
+    d = pos[:, [col[e] for e in ends]] - pos[:, [col[s] for s in starts]]
+    n = np.linalg.norm(d, axis=-1, keepdims=True)
+    return d / np.where(n > 1e-12, n, 1.0)
+
+
+def _fidelity(al: Alignment, checks: dict, source: Motion, result: Motion) -> list[JointFidelity]:
+    """Per mapped joint: the angle between its bone span in the finished clip (after the contact fix) and
+    the source's span, measured on both clips' own forward kinematics in canonical space; and how far aim
+    correction turned the joint and bent the joints inside its span (transfer's per-span checks), all
+    in degrees. source and result have the same frames."""
+    spans = {sgm.start: sgm for sgm in al.segments if sgm.source_start != sgm.source_end}
+    measured = [t for t in spans]
+    angle: dict[int, np.ndarray] = {}
+    if measured:
+        ds = _span_directions(source, [spans[t].source_start for t in measured],
+                              [spans[t].source_end for t in measured], al.source_convention)
+        dt = _span_directions(result, measured, [spans[t].end for t in measured], al.target_convention)
+        cos = np.clip(np.sum(ds * dt, axis=-1), -1.0, 1.0)
+        for i, t in enumerate(measured):
+            angle[t] = np.degrees(np.arccos(cos[:, i]))
     rows = []
     for s, t in al.pairs:
         s, t = int(s), int(t)
         row = JointFidelity(target=al.target.names[t], source=al.source.names[s])
-        if t in checks and len(checks[t][0]):
-            turned, bent, err = (np.degrees(c) for c in checks[t])
+        if t in angle:
+            err = angle[t]
             row.span_end = al.target.names[spans[t].end]
             row.direction_error_mean_deg = round(float(err.mean()), 4)
             row.direction_error_max_deg = round(float(err.max()), 4)
+        if t in checks and len(checks[t][0]):
+            turned, bent, _ = (np.degrees(c) for c in checks[t])
             row.aim_correction_mean_deg = round(float(turned.mean()), 4)
             row.aim_correction_max_deg = round(float(turned.max()), 4)
-            if spans[t].between:
+            if t in spans and spans[t].between:
                 row.between_bend_mean_deg = round(float(bent.mean()), 4)
                 row.between_bend_max_deg = round(float(bent.max()), 4)
         rows.append(row)
@@ -251,11 +294,20 @@ def retarget_clip(clip, rig, mapping=None, **options) -> Result:
     out = transfer(motion, al, in_place=opts.in_place, checks=checks)
 
     # Foot contacts: detected on the source, carried to the rig's feet, locked there (or only measured).
+    # In place, a planted foot should slide back with the removed travel (a treadmill), so locking it
+    # in the world would undo the stride: contacts are then only measured.
+    fix = opts.contact_fix and not opts.in_place
     out, contact_report, found = plant_feet(motion, sbody.legs, sconv, out, tbody.legs, tconv,
-                                        settings=opts.contact_settings, fix=opts.contact_fix)
-    contact_note = "applied" if opts.contact_fix else "not applied: switched off (measured only)"
+                                        settings=opts.contact_settings, fix=fix)
+    if fix:
+        contact_note = "applied"
+    elif opts.contact_fix:
+        contact_note = "not applied: the clip is in place (measured only)"
+        warnings.append("in place: feet are not locked, they slide back with the removed travel")
+    else:
+        contact_note = "not applied: switched off (measured only)"
 
-    joints = _fidelity(al, checks)
+    joints = _fidelity(al, checks, motion, out)
     if opts.fps is not None:
         out = resample(out, opts.fps)
 

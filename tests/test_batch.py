@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import csv
 import json
+import shutil
 from pathlib import Path
 
 import pytest
@@ -132,6 +133,22 @@ def test_a_broken_mapping_for_this_skeleton_stops_before_starting(tmp_path):
         plan_batch([str(lib)], RIG, tmp_path / "out", mapping=broken)
 
 
+def test_two_clips_that_would_share_an_output_are_refused(tmp_path):
+    for day in ("a", "b"):
+        _short_copy(CAPTURE / "idle.bvh", tmp_path / day / "idle.bvh", frames=10)
+    with pytest.raises(RetargetError, match="same output"):
+        find_clips([str(tmp_path / "a"), str(tmp_path / "b")])
+    assert len(find_clips([str(tmp_path)])) == 2  # their common parent keeps them apart
+
+
+def test_missing_mapping_file_is_a_clear_error(tmp_path):
+    lib = tmp_path / "lib"
+    _short_copy(CAPTURE / "idle.bvh", lib / "idle.bvh", frames=10)
+    r = CliRunner().invoke(main, ["batch", str(lib), "--rig", str(RIG), "-m", str(tmp_path / "no.yaml"),
+                                  "-o", str(tmp_path / "out")])
+    assert r.exit_code == 2 and "mapping file not found" in r.output and "Traceback" not in r.output
+
+
 def test_inputs_that_name_nothing(tmp_path):
     (tmp_path / "empty").mkdir()
     with pytest.raises(RetargetError, match="no clips"):
@@ -205,12 +222,16 @@ def test_ctrl_c_stops_cleanly_and_writes_the_report(library, tmp_path):
     import time
 
     out = tmp_path / "out"
+    # Full-length takes, enough that one worker needs several seconds: the signal lands mid-run.
+    for k in range(24):
+        shutil.copy(CAPTURE / "walk.bvh", library / "day1" / f"long_{k:02d}.bvh")
     proc = subprocess.Popen([sys.executable, "-m", "retarget.cli", "batch", str(library), "--rig", str(RIG),
                              "-m", str(MAPPING), "-o", str(out), "--workers", "1", "--quiet"],
                             cwd=REPO, stdout=subprocess.PIPE, stderr=subprocess.PIPE, start_new_session=True)
     deadline = time.time() + 60
     while not (out / MANIFEST_NAME).exists() and time.time() < deadline and proc.poll() is None:
         time.sleep(0.05)
+    assert proc.poll() is None, "the batch ended before it could be interrupted"
     os.killpg(proc.pid, signal.SIGINT)  # the whole group, as a terminal's Ctrl-C does
     _, err = proc.communicate(timeout=60)
     assert proc.returncode == 130, err

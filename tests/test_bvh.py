@@ -11,7 +11,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 from hypothesis.extra.numpy import arrays
 
-from retarget import BVHError, quat
+from retarget import BVHError, RetargetError, quat
 from retarget.io import parse_bvh, read_bvh, write_bvh
 from retarget.io.bvh import format_bvh
 
@@ -102,17 +102,38 @@ def test_written_angles_continuous_through_spins(tmp_path):
 
 
 def test_writer_output_is_never_partial(tmp_path):
-    """A failing write leaves neither the destination nor a temporary file behind."""
-    m = read_bvh(DATA / "mixed.bvh")
-    bad = m.replace(rotations=np.full_like(m.rotations, np.nan))
+    """A write that fails half way (the text pieces stop with an error) leaves neither the destination
+    nor a temporary file behind; an existing file stays as it was."""
+    from retarget.io.atomic import atomic_write
+
     target = tmp_path / "x.bvh"
-    try:
-        write_bvh(target, bad)
-    except Exception:
-        pass
-    # NaN rotations still format ("nan"); what must never happen is a half-written file.
-    leftovers = [p.name for p in tmp_path.iterdir() if p.name.endswith(".part")]
-    assert leftovers == []
+    target.write_text("old")
+
+    def pieces():
+        yield b"HIERARCHY\n"
+        raise OSError(28, "No space left on device")
+
+    with pytest.raises(RetargetError, match="No space left"):
+        atomic_write(target, pieces())
+    assert target.read_text() == "old"
+    assert [p.name for p in tmp_path.iterdir()] == ["x.bvh"]
+
+
+def test_writer_refuses_what_bvh_cannot_carry(tmp_path):
+    """NaN values, or a joint turned or moved where it has no channel for it: a BVHError naming the joint,
+    and no file."""
+    m = read_bvh(DATA / "mixed.bvh")
+    rot = np.array(m.rotations)
+    rot[1, 2] = np.nan
+    with pytest.raises(BVHError, match="frame 1, joint 'head'"):
+        write_bvh(tmp_path / "nan.bvh", m.replace(rotations=rot))
+    sk = m.skeleton
+    no_rot = sk.__class__(sk.names, sk.parents, sk.offsets, None, sk.tips,
+                          tuple(() if n == "hand_l" else c for n, c in zip(sk.names, sk.channels)))
+    turned = m.replace(skeleton=no_rot)
+    with pytest.raises(BVHError, match="'hand_l' has no rotation channels"):
+        write_bvh(tmp_path / "lost.bvh", turned)
+    assert list(tmp_path.iterdir()) == []
 
 
 GOOD = (DATA / "mixed.bvh").read_text()
@@ -130,7 +151,7 @@ def _bad(text: str, tmp_path: Path) -> BVHError:
 def test_truncated_motion_block(tmp_path):
     cut = GOOD[: GOOD.rindex("11 92.5")]
     e = _bad(cut, tmp_path)
-    assert "truncated" in str(e) and "3" in str(e)
+    assert "truncated" in str(e) and "'Frames: 3' declared, 2 frame lines found" in str(e)
 
 
 def test_wrong_value_count_names_the_frame(tmp_path):

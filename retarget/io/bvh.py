@@ -11,6 +11,7 @@ from __future__ import annotations
 import io
 import os
 import re
+import warnings
 from pathlib import Path
 
 import numpy as np
@@ -316,8 +317,14 @@ def parse_bvh(text: str, path: str = "<string>", fps: float | None = None, _from
         try:
             # At most one row more than declared: enough to tell that there are too many, and a known
             # size lets numpy fill one array instead of growing it.
-            values = np.loadtxt(body, dtype=np.float64, ndmin=2, comments=None,
-                                skiprows=body_start_line - 1 if _from_file else 0, max_rows=declared + 1)
+            # Each value takes at least two characters, so the data cannot hold more rows than this:
+            # a huge declared count must not reserve memory the file could never fill.
+            size = os.path.getsize(path) if _from_file else len(text) - pos
+            cap = min(declared + 1, size // (2 * ncols) + 1)
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore", UserWarning)  # blank lines at the end are fine
+                values = np.loadtxt(body, dtype=np.float64, ndmin=2, comments=None,
+                                    skiprows=body_start_line - 1 if _from_file else 0, max_rows=cap)
         except ValueError:
             _diagnose_rows(_body_text(text, _full, pos), body_start_line, ncols, path)
             raise BVHError("motion block could not be parsed", path=path, line=body_start_line) from None
@@ -651,11 +658,36 @@ def _file_blocks(motion: Motion):
     yield from _fixed6_blocks(_channel_values(motion))
 
 
+def _check_writable(motion: Motion, path: str | None = None) -> None:
+    """Refuse a clip the BVH text could not carry: non-finite values, or motion on a joint that has no
+    channel for it (it would be silently lost)."""
+    sk = motion.skeleton
+    trans = motion.local_translations()
+    bad = ~np.isfinite(motion.rotations).all(axis=2) | ~np.isfinite(trans).all(axis=2)
+    if bad.any():
+        f, j = np.argwhere(bad)[0]
+        raise BVHError(f"frame {f}, joint {sk.names[j]!r}: value is not finite; nothing written", path=path)
+    for j, chans in enumerate(sk.channels):
+        if not any(c in ROTATION_CHANNELS for c in chans):
+            turn = quat.angle_between(motion.rotations[:, j], np.broadcast_to(sk.rest_rotations[j],
+                                                                               motion.rotations[:, j].shape))
+            if turn.max() > 1e-6:
+                raise BVHError(f"joint {sk.names[j]!r} has no rotation channels but the clip turns it by up to "
+                               f"{np.degrees(turn.max()):.3g} deg; nothing written", path=path)
+        if not any(c in POSITION_CHANNELS for c in chans):
+            moved = np.abs(trans[:, j] - sk.offsets[j]).max() if len(trans) else 0.0
+            if moved > 1e-6 * max(1.0, float(np.abs(sk.offsets).max())):
+                raise BVHError(f"joint {sk.names[j]!r} has no position channels but the clip moves it; "
+                               "nothing written", path=path)
+
+
 def format_bvh(motion: Motion) -> str:
     """The BVH text of a clip (hierarchy kept as given, 6 decimals, continuous Euler angles)."""
+    _check_writable(motion)
     return b"".join(_file_blocks(motion)).decode("utf-8")
 
 
 def write_bvh(path: str | os.PathLike, motion: Motion) -> Path:
     """Write a clip to BVH atomically (temporary file in the destination folder, then rename)."""
+    _check_writable(motion, str(path))
     return atomic_write(path, _file_blocks(motion))
