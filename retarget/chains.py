@@ -196,10 +196,6 @@ def _main_path(skeleton: Skeleton, start: int, depth: np.ndarray, geo: np.ndarra
     return path
 
 
-def _chain_signature(skeleton: Skeleton, j: int, depth, size, geo) -> np.ndarray:
-    return np.array([depth[j], size[j], geo[j]], dtype=float)
-
-
 def _best_pair(skeleton: Skeleton, cands: list[int], depth, size, geo, pos, centre) -> tuple[int, int] | None:
     """The two candidates most alike in structure and length and placed as mirror images."""
     best, best_cost = None, np.inf

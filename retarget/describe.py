@@ -5,14 +5,12 @@ from __future__ import annotations
 import numpy as np
 from pydantic import BaseModel
 
-from . import quat
-from .chains import BodyLayout, analyze_body
+from .chains import BodyLayout, analyze_body, still_joints
 from .convention import Convention, detect_convention
 from .errors import SkeletonError
 from .motion import Motion
 
-__all__ = ["JointInfo", "ChainInfo", "ConventionInfo", "ClipSummary", "summarize", "rest_pose_kind",
-           "static_joints"]
+__all__ = ["JointInfo", "ChainInfo", "ConventionInfo", "ClipSummary", "summarize", "rest_pose_kind"]
 
 
 class JointInfo(BaseModel):
@@ -60,18 +58,6 @@ class ClipSummary(BaseModel):
     layout_problem: str | None = None
 
 
-def static_joints(motion: Motion, tol: float = 1e-9) -> list[int]:
-    """Joints whose local rotation (and translation) never change over the clip."""
-    if motion.num_frames < 2:
-        return list(range(motion.skeleton.num_joints))
-    rot = quat.make_continuous(motion.rotations, axis=0)
-    still = np.all(np.abs(rot - rot[:1]) <= tol, axis=(0, 2))
-    if motion.translations is not None:
-        still &= np.all(np.abs(motion.translations - motion.translations[:1]) <= tol, axis=(0, 2))
-    still[0] &= bool(np.all(np.abs(motion.root_positions - motion.root_positions[:1]) <= tol))
-    return [int(j) for j in np.flatnonzero(still)]
-
-
 def rest_pose_kind(body: BodyLayout) -> tuple[str, float | None]:
     """"T-pose", "A-pose" or "other" from the upper arms' elevation in the reference pose.
 
@@ -116,7 +102,8 @@ def summarize(motion: Motion, convention: Convention | None = None) -> ClipSumma
         conv = convention or Convention("+Y", "+Z", None, "unknown", 0.0, 0.0, "none",
                                         float(np.ptp(pos[:, 1])))
         kind, arm, chains, reference = "other (no body layout)", None, [], "rest"
-    still = set(static_joints(motion)) if motion.num_frames > 1 else set()
+    flags = body.still if body is not None else still_joints(motion)
+    still = set() if flags is None else {int(j) for j in np.flatnonzero(flags)}
     joints = [JointInfo(name=sk.names[j], parent=None if sk.parents[j] < 0 else sk.names[sk.parents[j]],
                         depth=int(sk.depths[j]), channels=list(sk.channels[j]),
                         offset=[float(v) for v in sk.offsets[j]], animated=j not in still)

@@ -96,7 +96,8 @@ class Mapping(BaseModel):
         return None
 
     def low_confidence(self, threshold: float = LOW_CONFIDENCE) -> list[JointPair]:
-        return [p for p in self.pairs if p.confidence < threshold]
+        # Compared as the file shows it (two decimals), so a reloaded file marks the same pairs.
+        return [p for p in self.pairs if round(p.confidence, 2) < threshold]
 
 
 def hierarchy_signature(skeleton: Skeleton) -> str:
@@ -121,7 +122,6 @@ def format_mapping(mapping: Mapping) -> str:
     """The YAML text of a mapping: a short header, then one line per pair and per unmapped joint."""
     import yaml
 
-    low = mapping.low_confidence()
     out = ["# Joint mapping: each pair's source joint drives its target joint.",
            "# Edit freely: change, add or delete pair lines. confidence (0-1) is how sure the matcher was;",
            f"# pairs below {LOW_CONFIDENCE} are marked 'check'. Loading the file checks every entry against both",
@@ -135,7 +135,7 @@ def format_mapping(mapping: Mapping) -> str:
         item = {"source": p.source, "target": p.target, "confidence": round(float(p.confidence), 2)}
         if p.reason:
             item["reason"] = p.reason
-        mark = "  # check" if p in low else ""
+        mark = "  # check" if round(float(p.confidence), 2) < LOW_CONFIDENCE else ""
         out.append(f"  - {_flow(item)}{mark}")
     out.append(f"unmapped:{'' if mapping.unmapped else ' []'}")
     for u in mapping.unmapped:

@@ -18,7 +18,7 @@ import re
 from functools import lru_cache
 
 __all__ = ["tokenize", "side_of_name", "strip_side", "concepts_of", "is_ambiguous", "name_affinity",
-           "BODY_WORDS", "CONCEPTS", "ROLE_CONCEPTS", "FINGER_CONCEPTS"]
+           "BODY_WORDS", "CONCEPTS", "FINGER_CONCEPTS"]
 
 _LEFT = {"l", "left", "lf", "lft", "lt"}
 _RIGHT = {"r", "right", "rt", "rgt", "ri"}
@@ -187,8 +187,6 @@ _AMBIGUOUS: dict[str, frozenset[str]] = {
 _WORD_CONCEPT = {w: c for c, ws in CONCEPTS.items() for w in ws}
 _COMPOUND_WORDS = frozenset(w for w in _WORD_CONCEPT if len(w) > 3)
 
-ROLE_CONCEPTS = ("pelvis", "spine", "chest", "neck", "head", "clavicle", "upperarm", "forearm", "hand",
-                 "thigh", "shin", "foot", "toe")
 FINGER_CONCEPTS = ("thumb", "index", "middle", "ring", "pinky")
 # H-Anim's numbered digits: metacarpophalangeal_1 is the thumb, ... _5 the little finger.
 _DIGIT_FINGER = {"1": "thumb", "2": "index", "3": "middle", "4": "ring", "5": "pinky"}

@@ -20,7 +20,6 @@ __all__ = [
     "multiply",
     "rotate",
     "from_axis_angle",
-    "to_axis_angle",
     "angle_between",
     "from_euler",
     "to_euler",
@@ -144,16 +143,6 @@ def from_axis_angle(axis: np.ndarray, angle: np.ndarray) -> np.ndarray:
     out[..., :3] = axis * s
     out[..., 3] = np.cos(half)
     return out
-
-
-def to_axis_angle(q: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Unit quaternions (..., 4) -> (axes (..., 3), angles (...) in [0, pi])."""
-    q = np.where(np.asarray(q)[..., 3:4] < 0, -np.asarray(q), np.asarray(q))
-    s = np.linalg.norm(q[..., :3], axis=-1)
-    angle = 2.0 * np.arctan2(s, q[..., 3])
-    with np.errstate(invalid="ignore", divide="ignore"):
-        axis = np.where(s[..., None] > 1e-12, q[..., :3] / s[..., None], np.array([1.0, 0.0, 0.0]))
-    return axis, angle
 
 
 def angle_between(a: np.ndarray, b: np.ndarray) -> np.ndarray:

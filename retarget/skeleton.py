@@ -192,12 +192,6 @@ class Skeleton:
         rot, pos = self.rest_global
         return pos + quat.rotate(rot, np.nan_to_num(self.tips)) + np.where(np.isnan(self.tips), np.nan, 0.0)
 
-    def bone_lengths(self) -> np.ndarray:
-        """(J,) length of the offset from each joint's parent (0 for the root)."""
-        out = np.linalg.norm(self.offsets, axis=1)
-        out[0] = 0.0
-        return out
-
     def with_rest(self, offsets: np.ndarray | None = None, rest_rotations: np.ndarray | None = None,
                   tips: np.ndarray | None = None) -> "Skeleton":
         """A copy with other rest values (same names, parents and channels)."""

@@ -73,7 +73,8 @@ def test_units_from_height(mpu, unit):
 def test_guess_units_refuses_ambiguous_heights():
     assert guess_units(1.75) == ("m", 1.0)
     assert guess_units(175) == ("cm", 0.01)
-    assert guess_units(25.6)[0] == "unknown"
+    assert guess_units(25.6)[0] == "unknown"  # fits no unit
+    assert guess_units(101.0) == ("unknown", None)  # 1.01 m in cm or 2.57 m in inches: both plausible
 
 
 def test_overrides_win_and_canonical_matrix_is_a_rotation():

@@ -25,7 +25,6 @@ from .atomic import atomic_write
 __all__ = ["read_bvh", "read_bvh_skeleton", "write_bvh", "format_bvh", "parse_bvh"]
 
 _VALID_CHANNELS = set(POSITION_CHANNELS) | set(ROTATION_CHANNELS)
-_NUMBER = re.compile(r"^[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?$")
 
 
 def _number(tok: str, path: str, line: int, what: str) -> float:
