@@ -317,7 +317,7 @@ def load_mapping(path: str | os.PathLike, source: Skeleton, target: Skeleton) ->
             problems.append(f"'{section}' must be a list of entries")
     pairs: list[JointPair] = []
     unmapped: list[UnmappedJoint] = []
-    pair_entries: list[int] = []
+    entries: dict[str, list[int]] = {"pairs": [], "unmapped": []}  # file entry number of each kept item
     for section, raw, model, out in (("pairs", pairs_raw, JointPair, pairs),
                                      ("unmapped", unmapped_raw, UnmappedJoint, unmapped)):
         if not isinstance(raw, list):
@@ -331,8 +331,7 @@ def load_mapping(path: str | os.PathLike, source: Skeleton, target: Skeleton) ->
                 continue
             try:
                 out.append(model.model_validate(item))
-                if section == "pairs":
-                    pair_entries.append(k)
+                entries[section].append(k)
             except ValidationError as exc:
                 for err in exc.errors():
                     loc = ".".join(str(x) for x in err["loc"]) or "entry"
@@ -352,19 +351,22 @@ def load_mapping(path: str | os.PathLike, source: Skeleton, target: Skeleton) ->
             head[key] = v
     mapping = Mapping(pairs=pairs, unmapped=unmapped, **head)
     # Entry numbers in the file may differ from list positions when entries were dropped as invalid.
-    pair_lines = {("pairs", i): lines.get(("pairs", k)) for i, k in enumerate(pair_entries)}
-    pair_lines.update({("unmapped", k): v for (s, k), v in lines.items() if s == "unmapped"})
-    renumber = dict(enumerate(pair_entries))
-    for msg in validate_mapping(mapping, source, target, {key: v for key, v in pair_lines.items() if v}):
-        problems.append(_renumber(msg, renumber))
+    item_lines = {(section, i): lines.get((section, k))
+                  for section, kept in entries.items() for i, k in enumerate(kept)}
+    for msg in validate_mapping(mapping, source, target, {key: v for key, v in item_lines.items() if v}):
+        problems.append(_renumber(msg, entries))
     if problems:
         head_line = "1 problem" if len(problems) == 1 else f"{len(problems)} problems"
         raise MappingError(f"{head_line} in the mapping:\n  - " + "\n  - ".join(problems), path=str(path))
     return mapping
 
 
-def _renumber(msg: str, renumber: dict[int, int]) -> str:
-    """Point pair messages at the file's entry numbers."""
+def _renumber(msg: str, entries: dict[str, list[int]]) -> str:
+    """Point messages about list items at the file's entry numbers."""
     import re
 
-    return re.sub(r"pairs\[(\d+)\]", lambda m: f"pairs[{renumber.get(int(m.group(1)), int(m.group(1)))}]", msg)
+    def fix(m):
+        kept, i = entries[m.group(1)], int(m.group(2))
+        return f"{m.group(1)}[{kept[i] if i < len(kept) else i}]"
+
+    return re.sub(r"(pairs|unmapped)\[(\d+)\]", fix, msg)

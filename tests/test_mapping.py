@@ -4,6 +4,8 @@ that what we write is plain YAML with the documented top-level keys."""
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import numpy as np
 import pytest
 import yaml
@@ -215,3 +217,22 @@ DEMO_TRUTH = {
                       "tm_L_tibia": "lfLegLower", "tm_L_foot": "lfFoot", "tm_L_toe": "lfToe",
                       "tm_R_hand": "rtHand", "tm_head": "head"},
 }
+
+
+def test_problem_entries_keep_their_file_numbers_in_every_section(tmp_path):
+    """An invalid entry dropped before the joint checks must not shift the numbers (and lines) of the
+    entries after it, in 'unmapped' as in 'pairs'."""
+    from retarget import read_bvh
+    from retarget.mapping import load_mapping
+
+    repo = Path(__file__).resolve().parents[1]
+    src = read_bvh(repo / "demo_clips" / "capture" / "walk.bvh").skeleton
+    tgt = read_bvh(repo / "demo_clips" / "rigs" / "brannoc_stocky.bvh").skeleton
+    text = (repo / "mappings" / "tallowmere_to_brannoc_stocky.yaml").read_text()
+    text = text[: text.index("unmapped:")] + "unmapped:\n  - 5\n  - {joint: nope, side: source}\n"
+    path = tmp_path / "m.yaml"
+    path.write_text(text)
+    with pytest.raises(MappingError) as info:
+        load_mapping(path, src, tgt)
+    line = text.splitlines().index("  - {joint: nope, side: source}") + 1
+    assert f"unmapped[1] (line {line}): source joint 'nope'" in str(info.value)
