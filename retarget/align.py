@@ -287,10 +287,6 @@ class Alignment:
     source_leg_length: float
     target_leg_length: float
 
-    def partner(self) -> dict[int, int]:
-        """target joint -> source joint for every mapped pair."""
-        return {int(t): int(s) for s, t in self.pairs}
-
 
 def _check_pairs(pairs, source: Skeleton, target: Skeleton) -> np.ndarray:
     arr = np.asarray(list(pairs), dtype=np.int64).reshape(-1, 2)

@@ -37,6 +37,8 @@ class Motion:
         them): numpy code works on either; quat.to_component_major is free for the latter.
     root_positions: (F, 3) local translation of the root joint, file units.
     fps: frames per second (> 0).
+    The arrays given are kept, not copied, and made read-only (a Motion never changes); pass a copy
+    when you still want to write into yours.
     translations: (F, J, 3) local translations of every joint, or None. Only present when the file
         animates translation on some joint other than the root; where present it replaces the offsets.
     """
