@@ -189,16 +189,15 @@ def _mapping_for(mapping, source: Skeleton, target: Skeleton, smotion: Motion, t
 
 def _span_directions(motion: Motion, starts: list[int], ends: list[int], conv: Convention) -> np.ndarray:
     """(F, S, 3) unit directions, canonical space, from each start joint to its end joint."""
-    from .align import positions_to_canonical
     from .motion import forward_kinematics
 
     joints = sorted(set(starts) | set(ends))
     col = {j: i for i, j in enumerate(joints)}
     _, pos = forward_kinematics(motion.skeleton, motion.rotations, motion.root_positions,
                                 motion.translations, joints=joints)
-    pos = positions_to_canonical(pos, conv)
     d = pos[:, [col[e] for e in ends]] - pos[:, [col[s] for s in starts]]
-    n = np.linalg.norm(d, axis=-1, keepdims=True)
+    d = d @ conv.file_to_canonical().T  # a direction needs the change of axes only, not the units
+    n = np.sqrt(np.einsum("fsk,fsk->fs", d, d))[..., None]
     return d / np.where(n > 1e-12, n, 1.0)
 
 
@@ -214,7 +213,7 @@ def _fidelity(al: Alignment, checks: dict, source: Motion, result: Motion) -> li
         ds = _span_directions(source, [spans[t].source_start for t in measured],
                               [spans[t].source_end for t in measured], al.source_convention)
         dt = _span_directions(result, measured, [spans[t].end for t in measured], al.target_convention)
-        cos = np.clip(np.sum(ds * dt, axis=-1), -1.0, 1.0)
+        cos = np.clip(np.einsum("fsk,fsk->fs", ds, dt), -1.0, 1.0)
         for i, t in enumerate(measured):
             angle[t] = np.degrees(np.arccos(cos[:, i]))
     rows = []

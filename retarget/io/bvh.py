@@ -661,11 +661,13 @@ def _check_writable(motion: Motion, path: str | None = None) -> None:
     """Refuse a clip the BVH text could not carry: non-finite values, or motion on a joint that has no
     channel for it (it would be silently lost)."""
     sk = motion.skeleton
-    trans = motion.local_translations()
-    bad = ~np.isfinite(motion.rotations).all(axis=2) | ~np.isfinite(trans).all(axis=2)
-    if bad.any():
-        f, j = np.argwhere(bad)[0]
-        raise BVHError(f"frame {f}, joint {sk.names[j]!r}: value is not finite; nothing written", path=path)
+    arrays = [("rotation", motion.rotations), ("root position", motion.root_positions[:, None])]
+    if motion.translations is not None:
+        arrays.append(("translation", motion.translations))
+    for what, a in arrays:
+        if not np.isfinite(a.sum()):  # one pass; NaN or inf anywhere spoils the sum
+            f, j = np.argwhere(~np.isfinite(a).all(axis=2))[0]
+            raise BVHError(f"frame {f}, joint {sk.names[j]!r}: {what} is not finite; nothing written", path=path)
     for j, chans in enumerate(sk.channels):
         if not any(c in ROTATION_CHANNELS for c in chans):
             turn = quat.angle_between(motion.rotations[:, j], np.broadcast_to(sk.rest_rotations[j],
@@ -673,9 +675,9 @@ def _check_writable(motion: Motion, path: str | None = None) -> None:
             if turn.max() > 1e-6:
                 raise BVHError(f"joint {sk.names[j]!r} has no rotation channels but the clip turns it by up to "
                                f"{np.degrees(turn.max()):.3g} deg; nothing written", path=path)
-        if not any(c in POSITION_CHANNELS for c in chans):
-            moved = np.abs(trans[:, j] - sk.offsets[j]).max() if len(trans) else 0.0
-            if moved > 1e-6 * max(1.0, float(np.abs(sk.offsets).max())):
+        if not any(c in POSITION_CHANNELS for c in chans) and (j == 0 or motion.translations is not None):
+            moved = motion.root_positions if j == 0 else motion.translations[:, j]
+            if np.abs(moved - sk.offsets[j]).max() > 1e-6 * max(1.0, float(np.abs(sk.offsets).max())):
                 raise BVHError(f"joint {sk.names[j]!r} has no position channels but the clip moves it; "
                                "nothing written", path=path)
 
