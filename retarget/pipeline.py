@@ -201,21 +201,21 @@ def _span_directions(motion: Motion, starts: list[int], ends: list[int], conv: C
     return d / np.where(n > 1e-12, n, 1.0)
 
 
-def _fidelity(al: Alignment, checks: dict, source: Motion, result: Motion) -> list[JointFidelity]:
-    """Per mapped joint: the angle between its bone span in the finished clip (after the contact fix) and
-    the source's span, measured on both clips' own forward kinematics in canonical space; and how far aim
-    correction turned the joint and bent the joints inside its span (transfer's per-span checks), all
-    in degrees. source and result have the same frames."""
+def _fidelity(al: Alignment, checks: dict, result: Motion) -> list[JointFidelity]:
+    """Per mapped joint: the angle between its bone span in the finished clip (after the contact fix, from
+    its own forward kinematics) and the source's span in canonical space; and how far aim correction
+    turned the joint and bent the joints inside its span (transfer's per-span checks), all in degrees.
+    result has the frames transfer was given."""
     spans = {sgm.start: sgm for sgm in al.segments if sgm.source_start != sgm.source_end}
-    measured = [t for t in spans]
+    measured = [t for t in spans if t in checks]
     angle: dict[int, np.ndarray] = {}
     if measured:
-        ds = _span_directions(source, [spans[t].source_start for t in measured],
-                              [spans[t].source_end for t in measured], al.source_convention)
+        # The source spans' directions come from transfer, which aimed at them; the result's are read
+        # back from its own forward kinematics, after the contact fix.
         dt = _span_directions(result, measured, [spans[t].end for t in measured], al.target_convention)
-        cos = np.clip(np.einsum("fsk,fsk->fs", ds, dt), -1.0, 1.0)
         for i, t in enumerate(measured):
-            angle[t] = np.degrees(np.arccos(cos[:, i]))
+            cos = np.clip(np.einsum("fk,fk->f", checks[t][2], dt[:, i]), -1.0, 1.0)
+            angle[t] = np.degrees(np.arccos(cos))
     rows = []
     for s, t in al.pairs:
         s, t = int(s), int(t)
@@ -226,7 +226,7 @@ def _fidelity(al: Alignment, checks: dict, source: Motion, result: Motion) -> li
             row.direction_error_mean_deg = round(float(err.mean()), 4)
             row.direction_error_max_deg = round(float(err.max()), 4)
         if t in checks and len(checks[t][0]):
-            turned, bent, _ = (np.degrees(c) for c in checks[t])
+            turned, bent = np.degrees(checks[t][0]), np.degrees(checks[t][1])
             row.aim_correction_mean_deg = round(float(turned.mean()), 4)
             row.aim_correction_max_deg = round(float(turned.max()), 4)
             if t in spans and spans[t].between:
@@ -306,7 +306,7 @@ def retarget_clip(clip, rig, mapping=None, **options) -> Result:
     else:
         contact_note = "not applied: switched off (measured only)"
 
-    joints = _fidelity(al, checks, motion, out)
+    joints = _fidelity(al, checks, out)
     if opts.fps is not None:
         out = resample(out, opts.fps)
 

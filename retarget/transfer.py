@@ -247,14 +247,12 @@ def _carry(motion: Motion, al: Alignment, in_place: bool
         aim = _between(vt, vs)
         for k in (sg.start,) + sg.between:
             g[k] = _mul(aim, g[k])
-        # Checks for the report: how far the span's start joint was turned, how far the in-between joints
-        # were bent, and how far the span still is from the source span (zero up to rounding unless a
-        # span has no length).
-        done = _rot(aim, vt)
-        cos = np.einsum("ij,ij->j", done, vs) / np.maximum(_norm(done) * _norm(vs), 1e-300)
+        # For the report: how far the span's start joint was turned, how far the in-between joints were
+        # bent (radians, (F,)), and the source span's direction ((F, 3), canonical, unit), against which
+        # the finished clip is measured.
         angle = 2.0 * np.arctan2(_norm(aim[:3]), np.abs(aim[3]))
         bent = np.zeros(f) if bend is None else 2.0 * np.arctan2(_norm(bend[:3]), np.abs(bend[3]))
-        checks[sg.start] = (angle, bent, np.arccos(np.clip(cos, -1.0, 1.0)))
+        checks[sg.start] = (angle, bent, (vs / np.maximum(_norm(vs), 1e-300)).T)
 
     followers = set(al.followers)
     for j in range(nt):
