@@ -188,17 +188,17 @@ def _mapping_for(mapping, source: Skeleton, target: Skeleton, smotion: Motion, t
 # ----- report -----------------------------------------------------------------------------------------
 
 def _span_directions(motion: Motion, starts: list[int], ends: list[int], conv: Convention) -> np.ndarray:
-    """(F, S, 3) unit directions, canonical space, from each start joint to its end joint."""
+    """(S, 3, F) unit directions, canonical space, from each start joint to its end joint."""
     from .motion import forward_kinematics
 
     joints = sorted(set(starts) | set(ends))
     col = {j: i for i, j in enumerate(joints)}
     _, pos = forward_kinematics(motion.skeleton, motion.rotations, motion.root_positions,
                                 motion.translations, joints=joints)
-    d = pos[:, [col[e] for e in ends]] - pos[:, [col[s] for s in starts]]
-    d = d @ conv.file_to_canonical().T  # a direction needs the change of axes only, not the units
-    n = np.sqrt(np.einsum("fsk,fsk->fs", d, d))[..., None]
-    return d / np.where(n > 1e-12, n, 1.0)
+    pos = pos.transpose(1, 2, 0)  # (J, 3, F): contiguous rows, as forward kinematics builds them
+    d = pos[[col[e] for e in ends]] - pos[[col[s] for s in starts]]
+    d = np.einsum("ik,skf->sif", conv.file_to_canonical(), d)  # directions need the axes, not the units
+    return d / np.maximum(np.sqrt(np.einsum("skf,skf->sf", d, d)), 1e-12)[:, None]
 
 
 def _fidelity(al: Alignment, checks: dict, result: Motion) -> list[JointFidelity]:
@@ -214,7 +214,7 @@ def _fidelity(al: Alignment, checks: dict, result: Motion) -> list[JointFidelity
         # back from its own forward kinematics, after the contact fix.
         dt = _span_directions(result, measured, [spans[t].end for t in measured], al.target_convention)
         for i, t in enumerate(measured):
-            cos = np.clip(np.einsum("fk,fk->f", checks[t][2], dt[:, i]), -1.0, 1.0)
+            cos = np.clip(np.einsum("kf,kf->f", checks[t][2], dt[i]), -1.0, 1.0)
             angle[t] = np.degrees(np.arccos(cos))
     rows = []
     for s, t in al.pairs:

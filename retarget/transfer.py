@@ -248,11 +248,11 @@ def _carry(motion: Motion, al: Alignment, in_place: bool
         for k in (sg.start,) + sg.between:
             g[k] = _mul(aim, g[k])
         # For the report: how far the span's start joint was turned, how far the in-between joints were
-        # bent (radians, (F,)), and the source span's direction ((F, 3), canonical, unit), against which
+        # bent (radians, (F,)), and the source span's direction ((3, F), canonical, unit), against which
         # the finished clip is measured.
         angle = 2.0 * np.arctan2(_norm(aim[:3]), np.abs(aim[3]))
         bent = np.zeros(f) if bend is None else 2.0 * np.arctan2(_norm(bend[:3]), np.abs(bend[3]))
-        checks[sg.start] = (angle, bent, (vs / np.maximum(_norm(vs), 1e-300)).T)
+        checks[sg.start] = (angle, bent, vs / np.maximum(_norm(vs), 1e-300))
 
     followers = set(al.followers)
     for j in range(nt):
