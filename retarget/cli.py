@@ -290,6 +290,7 @@ def preview_cmd(clip: str, rig: str, mapping: str | None, output: str, plots_dir
     result = retarget_clip(source, rig, mapping=mapping)
     contacts = contact_flags(result.contacts)
     title = f"{Path(clip).name} \u2192 {Path(rig).name}"
+    Path(output).parent.mkdir(parents=True, exist_ok=True)
     write_result_preview(output, source, result, title=title)
     click.echo(f"wrote {output}")
     if plots_dir:
