@@ -301,15 +301,19 @@ def process_clip(job: ClipJob) -> ClipRow:
 
 
 def _fill_figures(row: ClipRow, report: Any) -> None:
-    """Copy the per-clip figures of a RetargetReport into a report row."""
-    row.pose_error_mean_deg = report.direction_error_mean_deg
-    row.pose_error_max_deg = report.direction_error_max_deg
+    """Copy the per-clip figures of a RetargetReport into a report row, to 4 decimals (degrees, cm)."""
+
+    def r4(x):
+        return None if x is None else round(float(x), 4)
+
+    row.pose_error_mean_deg = r4(report.direction_error_mean_deg)
+    row.pose_error_max_deg = r4(report.direction_error_max_deg)
     overall = report.contacts.overall if report.contacts is not None else None
     if overall is not None:
-        row.skate_before_cm_s = overall.skate_before_cm_s
-        row.skate_after_cm_s = overall.skate_after_cm_s
-        row.penetration_before_cm = overall.penetration_before_cm
-        row.penetration_after_cm = overall.penetration_after_cm
+        row.skate_before_cm_s = r4(overall.skate_before_cm_s)
+        row.skate_after_cm_s = r4(overall.skate_after_cm_s)
+        row.penetration_before_cm = r4(overall.penetration_before_cm)
+        row.penetration_after_cm = r4(overall.penetration_after_cm)
     row.warnings = list(report.warnings)
 
 
