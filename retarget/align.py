@@ -36,7 +36,7 @@ from . import quat
 from .chains import BodyLayout, _is_degenerate, analyze_body
 from .convention import Convention, detect_convention
 from .errors import MappingError, OptionError, SkeletonError
-from .motion import Motion
+from .motion import Motion, forward_kinematics
 from .skeleton import Skeleton
 
 __all__ = [
@@ -167,8 +167,13 @@ def neutral_frame(motion: Motion, convention: Convention, body: BodyLayout) -> i
     chest line straight up, and upper arms and forearms hanging in the body's side plane (no forward or
     backward swing), so the frame relates to a T-pose by rotations about the forward axis only. That
     relation is what lets its bone frames stand in for a rest pose (see the module notes)."""
-    _, gpos = motion.global_transforms()
-    p = positions_to_canonical(gpos, convention)
+    # Forward kinematics of the scored joints only; the others stay zero and are never read.
+    limbs = list(body.legs.values()) + list(body.arms.values())
+    scored = sorted({body.pelvis, body.chest} | {j for limb in limbs for j in (limb.root, limb.mid, limb.end)})
+    _, gpos = forward_kinematics(motion.skeleton, motion.rotations, motion.root_positions, motion.translations,
+                                 joints=scored)
+    p = np.zeros((motion.num_frames, motion.skeleton.num_joints, 3))
+    p[:, scored] = positions_to_canonical(gpos, convention)
     down = -UP
     cost = _angle_to(p[:, body.chest] - p[:, body.pelvis], UP)
     for leg in body.legs.values():

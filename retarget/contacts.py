@@ -858,11 +858,17 @@ def carry_contacts(contacts: FootContacts, motion, legs: dict, convention,
     set, else the offset that best lays these levels over where the target's soles stand in each
     contact (a frame-weighted median).
     """
-    st = _settings(settings)
+    return _on_target(motion, legs, contacts, convention, _settings(settings))[3]
+
+
+def _on_target(motion, legs: dict, contacts: FootContacts, convention, st: ContactSettings):
+    """The target's feet, ground offset and soles, and the source's contacts carried onto them:
+    (feet, flat, sole, carried contacts)."""
     _check_frames(contacts, motion)
     ft = _feet(motion, legs, convention, contacts.feet)
     flat = _flat_offset(ft, _level_frames(ft, np.asarray(contacts.flags), st))
-    return _carry(contacts, ft, _sole(ft, flat).height, st)
+    sole = _sole(ft, flat)
+    return ft, flat, sole, _carry(contacts, ft, sole.height, st)
 
 
 def _check_frames(contacts: FootContacts, motion) -> None:
@@ -1129,14 +1135,10 @@ def fix_contacts(motion, legs: dict, contacts: FootContacts, convention,
     Returns (fixed Motion, ContactReport).
     """
     st = _settings(settings)
-    _check_frames(contacts, motion)
     sk = motion.skeleton
-    ft = _feet(motion, legs, convention, contacts.feet)
+    ft, flat, sole, target_contacts = _on_target(motion, legs, contacts, convention, st)
     f, k = contacts.flags.shape
     fps = motion.fps
-    flat = _flat_offset(ft, _level_frames(ft, np.asarray(contacts.flags), st))
-    sole = _sole(ft, flat)
-    target_contacts = _carry(contacts, ft, sole.height, st)
     before = _measure(ft, flat, target_contacts, st.skate_height)
     if f == 0 or not target_contacts.flags.any():
         return motion, contact_report(before, before, np.zeros((f, k), dtype=bool))
@@ -1220,9 +1222,8 @@ def plant_feet(source, source_legs: dict, source_convention, target, target_legs
     if fix:
         fixed, report = fix_contacts(target, target_legs, contacts, target_convention, st)
         return fixed, report, contacts
-    carried = carry_contacts(contacts, target, target_legs, target_convention, st)
-    report = contact_report(measure_contacts(target, target_legs, carried, target_convention, st))
-    return target, report, contacts
+    ft, flat, _, carried = _on_target(target, target_legs, contacts, target_convention, st)
+    return target, contact_report(_measure(ft, flat, carried, st.skate_height)), contacts
 
 
 # ----- detection summary (what `retarget contacts` shows) ---------------------------------------------

@@ -25,7 +25,7 @@ from .convention import Convention, detect_convention
 from .errors import MappingError, OptionError, options_from
 from .motion import Motion
 from .skeleton import Skeleton
-from .timing import resample, select_frames
+from .timing import frame_range, resample
 from .transfer import transfer
 
 __all__ = ["RetargetOptions", "JointFidelity", "SideInfo", "RetargetReport", "Result", "retarget_clip"]
@@ -281,9 +281,8 @@ def retarget_clip(clip, rig, mapping=None, **options) -> Result:
     motion = source_full
     first = 0
     if opts.frames is not None:
-        motion = select_frames(source_full, *opts.frames)
-        n = source_full.num_frames
-        first = 0 if opts.frames[0] is None else (opts.frames[0] + n if opts.frames[0] < 0 else opts.frames[0])
+        first, stop = frame_range(source_full, *opts.frames)
+        motion = source_full.slice(first, stop)
 
     al = align(source, target, pairs, source_convention=sconv, target_convention=tconv,
                source_motion=source_full, target_motion=rig_motion if rig_motion.num_frames else None,

@@ -8,13 +8,12 @@ from . import quat
 from .errors import OptionError
 from .motion import Motion
 
-__all__ = ["select_frames", "resample"]
+__all__ = ["frame_range", "select_frames", "resample"]
 
 
-def select_frames(motion: Motion, start: int | None = None, stop: int | None = None) -> Motion:
-    """Frames [start, stop) of a clip (0-based, stop excluded; None means the clip's end).
-
-    Negative values count from the end, as in Python. OptionError naming the clip when the range is
+def frame_range(motion: Motion, start: int | None = None, stop: int | None = None) -> tuple[int, int]:
+    """The frames [a, b) that start:stop selects (0-based, stop excluded, None means the clip's end,
+    negative values count from the end, as in Python). OptionError naming the clip when the range is
     empty or outside the clip."""
     n = motion.num_frames
     a = 0 if start is None else (start + n if start < 0 else start)
@@ -22,7 +21,12 @@ def select_frames(motion: Motion, start: int | None = None, stop: int | None = N
     if not (0 <= a < b <= n):
         raise OptionError(f"frame range {'' if start is None else start}:{'' if stop is None else stop} "
                           f"selects no frames of a {n}-frame clip (0-based, end excluded)", path=motion.source)
-    return motion.slice(a, b)
+    return a, b
+
+
+def select_frames(motion: Motion, start: int | None = None, stop: int | None = None) -> Motion:
+    """Frames start:stop of a clip, as frame_range reads them."""
+    return motion.slice(*frame_range(motion, start, stop))
 
 
 def resample(motion: Motion, fps: float) -> Motion:
