@@ -255,6 +255,29 @@ def _mirror(p: np.ndarray) -> np.ndarray:
     return p * np.array([-1.0, 1.0, 1.0])
 
 
+def _add_trunk(b: "_LayoutBuilder", lm: dict, H: float, count: int, pelvis: str, spine_name, neck: str,
+               head: str) -> list[np.ndarray]:
+    """Pelvis, ``count`` spine joints (named by spine_name(k), k from 1), neck and head; returns the spine
+    joints' positions."""
+    b.add(pelvis, None, lm["pelvis"])
+    parent = pelvis
+    spine = spine_points(lm, count, H)
+    for k, p in enumerate(spine, start=1):
+        parent = b.add(spine_name(k), parent, p)
+    b.add(neck, parent, lm["neck"])
+    b.add(head, neck, lm["head"], tip=lm["head_top"])
+    return spine
+
+
+def _add_leg(b: "_LayoutBuilder", lm: dict, m, pelvis: str, names: list[str]) -> None:
+    """Thigh, shin, foot and toe joints under the pelvis (names in that order); m mirrors for the right."""
+    thigh, shin, foot, toe = names
+    b.add(thigh, pelvis, m(lm["hip"]))
+    b.add(shin, thigh, m(lm["knee"]))
+    b.add(foot, shin, m(lm["ankle"]))
+    b.add(toe, foot, m(lm["ball"]), tip=m(lm["toe_tip"]))
+
+
 def capture_layout() -> Layout:
     """The Tallowmere capture skeleton: 35 joints, 4 spine joints, clavicles, thumb/index/middle with two
     joints each, toes; T-pose. Names: studio prefix ``tm_``, side letter, anatomical bone names."""
@@ -262,14 +285,8 @@ def capture_layout() -> Layout:
     H = body.table_height
     lm = body_landmarks(body, 0.0)
     b = _LayoutBuilder()
-    b.add("tm_pelvis", None, lm["pelvis"])
-    parent = "tm_pelvis"
-    spine = spine_points(lm, 4, H)
-    for k, p in enumerate(spine, start=1):
-        parent = b.add(f"tm_spine{k}", parent, p)
+    spine = _add_trunk(b, lm, H, 4, "tm_pelvis", lambda k: f"tm_spine{k}", "tm_neck", "tm_head")
     chest = spine[-1]
-    b.add("tm_neck", parent, lm["neck"])
-    b.add("tm_head", "tm_neck", lm["head"], tip=lm["head_top"])
     h = body.length("hand")
     for side, sx in (("L", 1.0), ("R", -1.0)):
         m = (lambda p: p) if sx > 0 else _mirror
@@ -294,10 +311,7 @@ def capture_layout() -> Layout:
         b.add(f"tm_{side}_middle2", f"tm_{side}_middle1", m1 + 0.26 * h * d, tip=w + h * d)
     for side, sx in (("L", 1.0), ("R", -1.0)):
         m = (lambda p: p) if sx > 0 else _mirror
-        b.add(f"tm_{side}_femur", "tm_pelvis", m(lm["hip"]))
-        b.add(f"tm_{side}_tibia", f"tm_{side}_femur", m(lm["knee"]))
-        b.add(f"tm_{side}_foot", f"tm_{side}_tibia", m(lm["ankle"]))
-        b.add(f"tm_{side}_toe", f"tm_{side}_foot", m(lm["ball"]), tip=m(lm["toe_tip"]))
+        _add_leg(b, lm, m, "tm_pelvis", [f"tm_{side}_{w}" for w in ("femur", "tibia", "foot", "toe")])
     return b.build()
 
 
@@ -308,13 +322,7 @@ def stocky_layout() -> Layout:
     H = body.table_height
     lm = body_landmarks(body, 45.0)
     b = _LayoutBuilder()
-    b.add("pelvis", None, lm["pelvis"])
-    parent = "pelvis"
-    spine = spine_points(lm, 3, H)
-    for k, p in enumerate(spine, start=1):
-        parent = b.add(f"back_{k}", parent, p)
-    b.add("neck", parent, lm["neck"])
-    b.add("head", "neck", lm["head"], tip=lm["head_top"])
+    spine = _add_trunk(b, lm, H, 3, "pelvis", lambda k: f"back_{k}", "neck", "head")
     for side, sx in (("l", 1.0), ("r", -1.0)):
         m = (lambda p: p) if sx > 0 else _mirror
         d = m(lm["arm_dir"])
@@ -329,10 +337,7 @@ def stocky_layout() -> Layout:
     for side, sx in (("l", 1.0), ("r", -1.0)):
         m = (lambda p: p) if sx > 0 else _mirror
         hip, knee = m(lm["hip"]), m(lm["knee"])
-        b.add(f"hip_{side}", "pelvis", hip)
-        b.add(f"knee_{side}", f"hip_{side}", knee)
-        b.add(f"ankle_{side}", f"knee_{side}", m(lm["ankle"]))
-        b.add(f"toe_{side}", f"ankle_{side}", m(lm["ball"]), tip=m(lm["toe_tip"]))
+        _add_leg(b, lm, m, "pelvis", [f"{w}_{side}" for w in ("hip", "knee", "ankle", "toe")])
         roll = 0.5 * (hip + knee)
         b.add(f"thigh_roll_{side}", f"hip_{side}", roll,
               tip=roll + np.array([0.0, -0.1 * body.length("thigh"), 0.0]))
@@ -346,13 +351,7 @@ def lanky_layout() -> Layout:
     H = body.table_height
     lm = body_landmarks(body, 0.0)
     b = _LayoutBuilder()
-    b.add("bodyRoot", None, lm["pelvis"])
-    parent = "bodyRoot"
-    spine = spine_points(lm, 5, H)
-    for k, p in enumerate(spine, start=1):
-        parent = b.add(f"spine{k}", parent, p)
-    b.add("neck", parent, lm["neck"])
-    b.add("head", "neck", lm["head"], tip=lm["head_top"])
+    spine = _add_trunk(b, lm, H, 5, "bodyRoot", lambda k: f"spine{k}", "neck", "head")
     h = body.length("hand")
     for side, sx in (("lf", 1.0), ("rt", -1.0)):
         m = (lambda p: p) if sx > 0 else _mirror
@@ -366,10 +365,7 @@ def lanky_layout() -> Layout:
         b.add(f"{side}Fingers", f"{side}Hand", wr + 0.5 * h * d, tip=wr + h * d)
     for side, sx in (("lf", 1.0), ("rt", -1.0)):
         m = (lambda p: p) if sx > 0 else _mirror
-        b.add(f"{side}LegUpper", "bodyRoot", m(lm["hip"]))
-        b.add(f"{side}LegLower", f"{side}LegUpper", m(lm["knee"]))
-        b.add(f"{side}Foot", f"{side}LegLower", m(lm["ankle"]))
-        b.add(f"{side}Toe", f"{side}Foot", m(lm["ball"]), tip=m(lm["toe_tip"]))
+        _add_leg(b, lm, m, "bodyRoot", [f"{side}{w}" for w in ("LegUpper", "LegLower", "Foot", "Toe")])
     # Tail: out of the back of the pelvis, 5 segments shrinking by 15 percent each, drooping 12 degrees
     # more per segment from a start 15 degrees below horizontal.
     p = lm["pelvis"] + np.array([0.0, -0.02 * H, -0.06 * H])
