@@ -889,17 +889,21 @@ def _gait(name: str, fps: float, cycles: int, cycle: float, stance: float, path,
     return TakePlan(name, fps, t, pel, hd, feet, curves)
 
 
-def take_walk(rng: np.random.Generator) -> TakePlan:
-    """Straight walk along the performer's forward axis, 1.25 m/s, 1.08 s cycle (111 steps a minute,
-    stride 1.35 m), 4 cycles at 120 fps."""
-    speed, cycle = 1.25, 1.08
+def _straight_path(speed: float):
+    """A root path along +Z at constant speed, heading unchanged: t (F,) -> (positions (F, 3), yaw (F,))."""
 
     def path(t):
         p = np.zeros((len(t), 3))
         p[:, 2] = speed * t
         return p, np.zeros(len(t))
 
-    return _gait("walk", 120.0, 4, cycle, WALK_STANCE, path, run=False, rng=rng)
+    return path
+
+
+def take_walk(rng: np.random.Generator) -> TakePlan:
+    """Straight walk along the performer's forward axis, 1.25 m/s, 1.08 s cycle (111 steps a minute,
+    stride 1.35 m), 4 cycles at 120 fps."""
+    return _gait("walk", 120.0, 4, 1.08, WALK_STANCE, _straight_path(1.25), run=False, rng=rng)
 
 
 def take_walk_curve(rng: np.random.Generator) -> TakePlan:
@@ -919,14 +923,7 @@ def take_walk_curve(rng: np.random.Generator) -> TakePlan:
 def take_jog(rng: np.random.Generator) -> TakePlan:
     """Jog at 2.8 m/s, 0.72 s cycle (stride 2.0 m), stance 38 percent (flight phases), 4 cycles at
     120 fps."""
-    speed, cycle = 2.8, 0.72
-
-    def path(t):
-        p = np.zeros((len(t), 3))
-        p[:, 2] = speed * t
-        return p, np.zeros(len(t))
-
-    return _gait("jog", 120.0, 4, cycle, JOG_STANCE, path, run=True, rng=rng)
+    return _gait("jog", 120.0, 4, 0.72, JOG_STANCE, _straight_path(2.8), run=True, rng=rng)
 
 
 def _standing_curves(t: np.ndarray, heading) -> dict[str, np.ndarray]:
