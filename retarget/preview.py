@@ -40,7 +40,7 @@ __all__ = [
     "build_preview",
     "write_preview",
     "plot_clip",
-    "contact_runs",
+    "contact_run_pairs",
     "foot_slide",
     "segment_angles",
     "report_numbers",
@@ -206,12 +206,11 @@ def _frame_map(n_from: int, fps_from: float, n_to: int, fps_to: float) -> np.nda
 
 # ----- contacts and measures -------------------------------------------------------------------------
 
-def contact_runs(flags: np.ndarray) -> list[list[int]]:
-    """Runs of True as [start, stop) frame pairs: [F F T T F T] -> [[2, 4], [5, 6]]."""
-    f = np.asarray(flags, dtype=bool).astype(np.int8)
-    edges = np.diff(np.concatenate([[0], f, [0]]))
-    starts = np.flatnonzero(edges == 1)
-    stops = np.flatnonzero(edges == -1)
+def contact_run_pairs(flags: np.ndarray) -> list[list[int]]:
+    """contacts.contact_runs as JSON-ready [start, stop) pairs: [F F T T F T] -> [[2, 4], [5, 6]]."""
+    from .contacts import contact_runs
+
+    starts, stops = contact_runs(flags)
     return [[int(a), int(b)] for a, b in zip(starts, stops)]
 
 
@@ -418,7 +417,7 @@ def build_preview(source: Motion, target: Motion, *, source_convention=None, tar
         "title": title,
         "sides": [_side_json(src), _side_json(tgt)],
         "contacts": [{"key": k, "source": e["source"], "target": e["target"],
-                      "runs": contact_runs(e["flags"])} for k, e in resolved.items()],
+                      "runs": contact_run_pairs(e["flags"])} for k, e in resolved.items()],
         "contact_numbers": _contact_numbers(resolved, src, tgt),
         "numbers": report_numbers(numbers),
     }

@@ -25,7 +25,7 @@ from retarget.convention import Convention
 from retarget.errors import OptionError
 from retarget.io import read_bvh
 from retarget.motion import Motion
-from retarget.preview import (build_preview, contact_runs, foot_slide, plot_clip, prepare_side,
+from retarget.preview import (build_preview, contact_run_pairs, foot_slide, plot_clip, prepare_side,
                               segment_angles, write_preview)
 from retarget.skeleton import Skeleton
 
@@ -262,10 +262,10 @@ def test_contact_and_pair_adapters():
 
 # ----- measures --------------------------------------------------------------------------------------
 
-def test_contact_runs_and_foot_slide_by_hand():
-    assert contact_runs(np.array([0, 0, 1, 1, 0, 1], bool)) == [[2, 4], [5, 6]]
-    assert contact_runs(np.ones(3, bool)) == [[0, 3]]
-    assert contact_runs(np.zeros(3, bool)) == []
+def test_contact_run_pairs_and_foot_slide_by_hand():
+    assert contact_run_pairs(np.array([0, 0, 1, 1, 0, 1], bool)) == [[2, 4], [5, 6]]
+    assert contact_run_pairs(np.ones(3, bool)) == [[0, 3]]
+    assert contact_run_pairs(np.zeros(3, bool)) == []
     # Steps of 3-4-5 triangles: 5 cm each; only steps with contact on both frames count; height ignored.
     p = np.array([[0, 0, 0], [0.03, 0.5, 0.04], [0.06, 0, 0.08], [0.09, 0, 0.12], [0.12, 0, 0.16]])
     c = np.array([True, True, False, True, True])
