@@ -61,9 +61,16 @@ def _glued_side(token: str) -> str | None:
     for word, side in (("left", "left"), ("right", "right")):
         if token.startswith(word) and token[len(word):] in BODY_WORDS | _COMPOUND_WORDS:
             return side
-    if len(token) > 2 and token[0] in "lr" and token[1:] in BODY_WORDS | _COMPOUND_WORDS:
+    if len(token) > 2 and token[0] in "lr" and token[1:] in BODY_WORDS | _COMPOUND_WORDS \
+            and token not in _NOT_GLUED:
         return "left" if token[0] == "l" else "right"
     return None
+
+
+# Ordinary words that happen to read as a side letter glued to a body word ("rear" = r + ear).
+_NOT_GLUED = frozenset({"rear"})
+# Spine words: a letter and digits in front of them name a vertebra ("L5_vertebra"), not a side.
+_SPINE_WORDS = frozenset({"spine", "back", "vertebra", "lumbar", "thoracic", "cervical", "sacrum"})
 
 
 def _glued_prefix(token: str) -> int:
@@ -93,7 +100,9 @@ def _side_marks(name: str) -> tuple[tuple[int, str, str], ...]:
                 # "L1" inside a name is a vertebra, not a side: a letter glued to digits only counts at
                 # the name's edges.
                 glued_digit = k + 1 < len(part) and part[k + 1].isdigit()
-                if edge and not (glued_digit and i != 0) or alone:
+                # At the start, "L1_Thigh" still has a side; "L1" or "L5_vertebra" alone names a vertebra.
+                limb_after = any(u in BODY_WORDS and u not in _SPINE_WORDS for u in flat[i + 1:])
+                if edge and not (glued_digit and (i != 0 or not limb_after)) or alone:
                     marks.append((i, side, "letter"))
                 elif k == 0 and k + 1 < len(part) and not part[k + 1].isdigit() and len(part[k + 1]) > 2 \
                         and (part[k + 1] in BODY_WORDS or part[k + 1] in _COMPOUND_WORDS):

@@ -104,3 +104,13 @@ def test_affinity_scores_agreement_and_conflict():
     assert name_affinity("Spine2", "Chest") > 0               # a chest is a spine joint
     assert name_affinity("prop_sword", "sword") > 0            # words outside the vocabulary
     assert name_affinity("upperarm_twist_l", "upperarm_l") < name_affinity("upperarm_l", "LeftUpperArm")
+
+
+def test_vertebra_names_and_ordinary_words_carry_no_side():
+    """A letter with digits alone or before a spine word names a vertebra (L1, L5: lumbar vertebrae, as
+    anatomy numbers them); "rear" is a word, not r + ear. A limb word after the same prefix keeps the side."""
+    from retarget.names import side_of_name
+
+    assert side_of_name("L1") is None and side_of_name("L5_vertebra") is None
+    assert side_of_name("Rear_Leg") is None
+    assert side_of_name("L1_Thigh") == "left" and side_of_name("lEar") == "left"
