@@ -213,11 +213,7 @@ def bone_frame(direction: np.ndarray, forward: np.ndarray, use_up: bool) -> np.n
 def leg_length(body: BodyLayout, positions: np.ndarray) -> float:
     """Mean over both legs of thigh + shin length (hip to knee, knee to ankle) in the units of
     ``positions`` (J, 3). Independent of the pose, since bones are rigid."""
-    out = []
-    for leg in body.legs.values():
-        out.append(np.linalg.norm(positions[leg.mid] - positions[leg.root])
-                   + np.linalg.norm(positions[leg.end] - positions[leg.mid]))
-    return float(np.mean(out))
+    return float(np.mean([leg.reach(positions) for leg in body.legs.values()]))
 
 
 def standing_height(body: BodyLayout, ref: ReferencePose) -> float:

@@ -56,6 +56,12 @@ class Limb:
     toe: int | None = None
     certainty: float = 1.0
 
+    def reach(self, positions: np.ndarray) -> float:
+        """Length of the upper plus the lower segment (thigh + shin, upper arm + forearm) in the units of
+        ``positions`` (J, 3); the same in any pose, since bones are rigid."""
+        return float(np.linalg.norm(positions[self.mid] - positions[self.root])
+                     + np.linalg.norm(positions[self.end] - positions[self.mid]))
+
     @property
     def lead(self) -> tuple[int, ...]:
         """Joints of the chain before the upper segment (clavicle, hip joint, buttock)."""

@@ -485,8 +485,7 @@ def _check_legs(skeleton, legs: dict, feet: tuple[str, ...] | None = None) -> tu
 
 
 def _leg_length(skeleton, leg, scale: float) -> float:
-    pos = np.asarray(skeleton.rest_global[1])
-    length = (np.linalg.norm(pos[leg.mid] - pos[leg.root]) + np.linalg.norm(pos[leg.end] - pos[leg.mid])) * scale
+    length = leg.reach(np.asarray(skeleton.rest_global[1])) * scale
     if not length > 0:
         raise SkeletonError(f"leg at {skeleton.names[leg.root]!r} has zero length in the rest pose",
                             path=skeleton.source)
