@@ -164,7 +164,7 @@ def _suggest(name: str, names) -> str:
     return f" (did you mean {close[0]!r}?)" if close else ""
 
 
-def _skeleton_change(which: str, skeleton: Skeleton, joints: list[str] | None) -> str:
+def _skeleton_change(skeleton: Skeleton, joints: list[str] | None) -> str:
     if joints is None:
         return ""
     now, then = set(skeleton.names), set(joints)
@@ -199,7 +199,7 @@ def validate_mapping(mapping: Mapping, source: Skeleton, target: Skeleton,
         if changed:
             was = f"was {sig}, now {now}" if sig is not None else "joint list differs"
             problems.append(f"{which}_signature: the {which} skeleton{' ' + repr(sk.source) if sk.source else ''} "
-                            f"changed since this mapping was made ({was}{_skeleton_change(which, sk, joints)})")
+                            f"changed since this mapping was made ({was}{_skeleton_change(sk, joints)})")
     valid: list[tuple[int, int, int]] = []  # (entry, source index, target index)
     seen_s: dict[str, int] = {}
     seen_t: dict[str, int] = {}

@@ -62,7 +62,6 @@ class _Figure:
     anc: np.ndarray
     side_certainty: float
     side_note: str
-    facing_known: bool
     chain_of: dict[int, Chain] = field(default_factory=dict)
 
     @property
@@ -109,10 +108,8 @@ def _read(skeleton: Skeleton, motion, body: BodyLayout | None = None) -> _Figure
     body = analyze_body(skeleton, motion) if body is None else body
     up = body.up
     fwd = body.forward
-    facing_known = fwd is not None
     if fwd is not None:
         fwd = _unit(fwd - np.dot(fwd, up) * up)
-        facing_known = fwd is not None
     if fwd is None:
         trial = np.array([0.0, 0.0, 1.0]) if abs(up[2]) < 0.9 else np.array([1.0, 0.0, 0.0])
         fwd = _unit(trial - np.dot(trial, up) * up)
@@ -140,7 +137,7 @@ def _read(skeleton: Skeleton, motion, body: BodyLayout | None = None) -> _Figure
         note = "sides from geometry" if cert >= 0.5 else "left/right unclear from geometry"
     else:
         cert, note = 0.0, "left/right undecided (no side names, no toe direction)"
-    fig = _Figure(skeleton, body, pos, tips, body.still, skeleton.ancestor_matrix, cert, note, facing_known)
+    fig = _Figure(skeleton, body, pos, tips, body.still, skeleton.ancestor_matrix, cert, note)
     for c in body.chains:
         for j in c.joints:
             fig.chain_of[j] = c
